@@ -1,0 +1,471 @@
+package metrics
+
+import (
+	"errors"
+	"fmt"
+	"math"
+	"runtime"
+	"sync"
+
+	"longwave/ingest"
+)
+
+// Errors of Compute; wrapped with the recording's details.
+var (
+	// ErrNoChannels: none of the 19 positions is present with usable data.
+	ErrNoChannels = errors.New("metrics: no usable channel of the 19 standard positions")
+	// ErrSampleRate: the EEG rate cannot carry the analysis (the 45 Hz
+	// low-pass must lie below the Nyquist frequency).
+	ErrSampleRate = errors.New("metrics: sample rate too low for the analysis")
+	// ErrTooShort: the channels are shorter than one epoch.
+	ErrTooShort = errors.New("metrics: recording shorter than one epoch")
+)
+
+// maxWorkers bounds the goroutines of one Compute: each holds float64 work
+// buffers as long as the longest segment at the recording's and at the
+// analysis rate (9 MB for 30 min at 500 Hz), so the bound is also a memory
+// bound.
+const maxWorkers = 4
+
+// Compute runs processing settings s over rec and returns the markers, the
+// quality figures and the display products.
+//
+// Memory: Compute uses the Samples of the analysed channels (the 19
+// positions present, not marked bad by a sidecar, at the EEG rate) as its
+// work space: on return their contents are overwritten (the first part holds
+// the filtered, referenced signal at the analysis rate, the rest is stale).
+// A caller that needs the decoded samples afterwards passes a copy. Other
+// channels are not touched. In exchange no second copy of the signal is
+// made: besides the decoded float32 samples, Compute holds one float64
+// segment-length buffer per worker (at most maxWorkers, and no more than
+// GOMAXPROCS).
+//
+// Work is spread over a bounded pool of goroutines, one channel at a time
+// each: filtering, epoch statistics and Welch spectra per channel, the
+// common average in blocks of time.
+func Compute(rec *ingest.Recording, s Settings) (*Result, error) {
+	a, err := analyse(rec, s)
+	if err != nil {
+		return nil, err
+	}
+	res := &Result{
+		SettingsVersion: s.Version,
+		SettingsHash:    s.Hash(),
+		Conditions:      rec.Conditions,
+	}
+	res.Quality = a.quality()
+	res.Markers = a.markers()
+	if dk, known := a.drowsiness(); known {
+		res.Quality.Drowsiness, res.Quality.DrowsinessKnown = dk, true
+	}
+	res.Display = a.display()
+	return res, nil
+}
+
+// analyse runs the signal stages of Compute: channel selection, filtering,
+// bad channels, referencing, epochs and artefact rules, spectra.
+func analyse(rec *ingest.Recording, s Settings) (*analysis, error) {
+	if rec == nil {
+		return nil, fmt.Errorf("%w: no recording", ErrNoChannels)
+	}
+	a, err := prepare(rec, s)
+	if err != nil {
+		return nil, err
+	}
+	if err := a.filter(rec); err != nil {
+		return nil, err
+	}
+	a.markBadChannels()
+	commonAverage(a.data, a.good, a.n, a.workers)
+	a.epochs(rec)
+	a.spectra()
+	return a, nil
+}
+
+// analysis carries one Compute's state between its stages.
+type analysis struct {
+	s       Settings
+	fsIn    float64 // the recording's EEG rate, Hz
+	q       int     // decimation factor after filtering
+	fs      float64 // analysis rate fsIn/q, Hz
+	nIn     int     // samples per analysed channel at fsIn
+	n       int     // samples per analysed channel at fs
+	workers int
+
+	names []string    // labels of the analysed channels
+	data  [][]float32 // their samples (rec's, filtered in place)
+	good  []bool      // not flat or noisy
+	level []float64   // median window SD after filtering, µV
+	// why a channel of the 19 was left out or marked bad, by label
+	badReason map[string]string
+	bad       []string // bad channels of the 19 in Standard19 order
+
+	lineHz     float64
+	lineSource string
+	lp         SOS // low-pass at fsIn
+	hp         SOS // high-pass at fs
+	slow       SOS // high-pass and notch at fs, as applied
+
+	segsIn  []ingest.Segment // at fsIn
+	segs    []ingest.Segment // at fs, after decimation
+	periods []ingest.Period
+	length  int // epoch length in samples
+	eps     []epoch
+	stats   [][]epochStat // [channel][epoch]
+	rules   map[string]int
+	runs    []run
+
+	freqs []float64
+	// psd[state][channel]: Welch density (response-corrected), nil for a
+	// bad channel or a state without clean segments
+	psd     map[ingest.EyeState][][]float64
+	primary ingest.EyeState // the state the "closed" markers use
+	fits    map[fitKey]fitResult
+}
+
+func prepare(rec *ingest.Recording, s Settings) (*analysis, error) {
+	a := &analysis{s: s, badReason: map[string]string{}}
+	a.fsIn = rec.Conditions.SampleRate
+	if !(a.fsIn > 0) {
+		for _, name := range s.Channels {
+			if ch := rec.Channel(name); ch != nil && ch.SampleRate > 0 {
+				a.fsIn = ch.SampleRate
+				break
+			}
+		}
+	}
+	if !(a.fsIn > 0) || math.IsInf(a.fsIn, 0) {
+		return nil, fmt.Errorf("%w: %q: no EEG sample rate", ErrNoChannels, rec.Name)
+	}
+	if s.Filters.LowPassHz >= a.fsIn/2 {
+		return nil, fmt.Errorf("%w: %q: %g Hz, the %g Hz low-pass needs more than %g Hz",
+			ErrSampleRate, rec.Name, a.fsIn, s.Filters.LowPassHz, 2*s.Filters.LowPassHz)
+	}
+	a.q = max(1, int(math.Floor(a.fsIn/s.AnalysisRateHz)))
+	a.fs = a.fsIn / float64(a.q)
+	a.nIn = math.MaxInt
+	var chans []*ingest.Channel
+	for _, name := range s.Channels {
+		ch := rec.Channel(name)
+		switch {
+		case ch == nil:
+			continue
+		case ch.Bad:
+			a.badReason[name] = "marked bad by the recording's sidecar"
+		case math.Abs(ch.SampleRate-a.fsIn) > 1e-9*a.fsIn:
+			a.badReason[name] = fmt.Sprintf("sample rate %g Hz differs from the EEG rate %g Hz", ch.SampleRate, a.fsIn)
+		case len(ch.Samples) == 0:
+			a.badReason[name] = "no samples"
+		default:
+			chans = append(chans, ch)
+			a.nIn = min(a.nIn, len(ch.Samples))
+		}
+	}
+	if len(chans) == 0 {
+		return nil, fmt.Errorf("%w: %q", ErrNoChannels, rec.Name)
+	}
+	a.length = int(math.Round(s.EpochSeconds * a.fs))
+	if a.nIn < a.length*a.q {
+		return nil, fmt.Errorf("%w: %q: %d samples at %g Hz, one %g s epoch needs %d",
+			ErrTooShort, rec.Name, a.nIn, a.fsIn, s.EpochSeconds, a.length*a.q)
+	}
+	for _, ch := range chans {
+		a.names = append(a.names, ch.Label)
+		a.data = append(a.data, ch.Samples[:a.nIn])
+	}
+	a.workers = max(1, min(runtime.GOMAXPROCS(0), maxWorkers, len(chans)))
+	a.segsIn = segmentsOf(rec, a.nIn)
+	// The segments after decimation: segment g keeps its samples
+	// First + k·q, k < ceil(Count/q), packed one after the other.
+	next := 0
+	for _, g := range a.segsIn {
+		c := (g.Count + a.q - 1) / a.q
+		a.segs = append(a.segs, ingest.Segment{Onset: g.Onset, First: next, Count: c})
+		next += c
+	}
+	a.n = next
+	end := 0.0 // recording time of the last sample's end (gaps of EDF+D count)
+	for _, g := range a.segsIn {
+		end = math.Max(end, g.Onset+float64(g.Count)/a.fsIn)
+	}
+	a.periods = normalisePeriods(rec.Periods, end)
+	var err error
+	if a.hp, err = ButterHighpass(s.Filters.HighPassOrder, s.Filters.HighPassHz, a.fs); err != nil {
+		return nil, fmt.Errorf("metrics: %q: high-pass: %w", rec.Name, err)
+	}
+	if a.lp, err = ButterLowpass(s.Filters.LowPassOrder, s.Filters.LowPassHz, a.fsIn); err != nil {
+		return nil, fmt.Errorf("metrics: %q: low-pass: %w", rec.Name, err)
+	}
+	return a, nil
+}
+
+// parallel calls fn(worker, i) for i = 0…n−1 on `workers` goroutines; each
+// worker index is used by one goroutine at a time, so fn may keep per-worker
+// work space indexed by it.
+func parallel(n, workers int, fn func(worker, i int)) {
+	if workers <= 1 || n <= 1 {
+		for i := 0; i < n; i++ {
+			fn(0, i)
+		}
+		return
+	}
+	var wg sync.WaitGroup
+	next := make(chan int)
+	for w := 0; w < workers; w++ {
+		wg.Add(1)
+		go func(w int) {
+			defer wg.Done()
+			for i := range next {
+				fn(w, i)
+			}
+		}(w)
+	}
+	for i := 0; i < n; i++ {
+		next <- i
+	}
+	close(next)
+	wg.Wait()
+}
+
+// filter finds the line frequency, then filters every analysed channel
+// segment by segment (no filter runs across a join of two runs or a gap of
+// an EDF+D file), zero-phase (FiltFilt = scipy.signal.sosfiltfilt):
+//
+//  1. the low-pass at the recording's rate;
+//  2. keep every q-th sample (Settings.AnalysisRateHz; the low-pass is the
+//     anti-alias filter);
+//  3. the high-pass and the notch at the analysis rate, as one cascade.
+//
+// A zero-phase filter's response is the square of the magnitude response
+// whatever the order of the stages, so the result equals the three filters
+// run at the recording's rate up to the edge padding; the high-pass and
+// notch run on q times fewer samples. The output is written in place over
+// the channel's own samples (the packed position never passes the read
+// position). It also measures each channel's level for the bad-channel
+// rules.
+func (a *analysis) filter(rec *ingest.Recording) error {
+	a.detectLine(rec)
+	slow := append(SOS{}, a.hp...)
+	if a.lineHz > 0 && a.lineHz < a.fs/2 {
+		notch, err := IIRNotch(a.lineHz, a.s.Filters.NotchQ, a.fs)
+		if err != nil {
+			return fmt.Errorf("metrics: %q: notch at %g Hz: %w", rec.Name, a.lineHz, err)
+		}
+		slow = append(slow, notch...)
+	}
+	a.slow = slow
+	padFast, padSlow := PadLen(a.lp), PadLen(slow)
+	maxIn, maxOut := 0, 0
+	for i, g := range a.segsIn {
+		maxIn = max(maxIn, g.Count)
+		maxOut = max(maxOut, a.segs[i].Count)
+	}
+	work := make([][]float64, a.workers)
+	work2 := make([][]float64, a.workers)
+	a.level = make([]float64, len(a.data))
+	win := max(2, int(math.Round(a.s.Channel.WindowSeconds*a.fs)))
+	parallel(len(a.data), a.workers, func(w, c int) {
+		if work[w] == nil {
+			work[w] = make([]float64, maxIn+2*padFast)
+			work2[w] = make([]float64, maxOut+2*padSlow)
+		}
+		x := a.data[c]
+		for i, g := range a.segsIn {
+			out := x[a.segs[i].First : a.segs[i].First+a.segs[i].Count]
+			if g.Count <= padFast || len(out) <= padSlow {
+				clear(out) // too short to filter; no epoch fits in it
+				continue
+			}
+			buf := work[w][:g.Count]
+			for k, v := range x[g.First : g.First+g.Count] {
+				buf[k] = float64(v)
+			}
+			y := FiltFilt(work[w], buf, a.lp) // in place: cap(work) ≥ Count + 2·pad
+			dec := work2[w][:len(out)]
+			for k := range dec {
+				dec[k] = y[k*a.q]
+			}
+			z := FiltFilt(work2[w], dec, slow)
+			for k := range out {
+				out[k] = float32(z[k])
+			}
+		}
+		a.data[c] = x[:a.n]
+		a.level[c] = windowLevel(a.data[c], a.segs, win)
+	})
+	return nil
+}
+
+// windowLevel is the median over non-overlapping windows of win samples
+// (inside segments) of the window's standard deviation.
+func windowLevel(x []float32, segs []ingest.Segment, win int) float64 {
+	var sds []float64
+	for _, g := range segs {
+		for i := g.First; i+win <= g.First+g.Count; i += win {
+			var sum, ss float64
+			for _, v := range x[i : i+win] {
+				sum += float64(v)
+			}
+			mean := sum / float64(win)
+			for _, v := range x[i : i+win] {
+				d := float64(v) - mean
+				ss += d * d
+			}
+			sds = append(sds, math.Sqrt(ss/float64(win)))
+		}
+	}
+	return median(sds)
+}
+
+// markBadChannels applies the channel rules of s.Channel.
+func (a *analysis) markBadChannels() {
+	a.good = make([]bool, len(a.data))
+	med := median(a.level)
+	for c, lv := range a.level {
+		switch {
+		case lv < a.s.Channel.FlatSDMicrovolts:
+			a.badReason[a.names[c]] = fmt.Sprintf("flat: level %.3g µV below %g µV", lv, a.s.Channel.FlatSDMicrovolts)
+		case lv > a.s.Channel.NoisyFactor*med:
+			a.badReason[a.names[c]] = fmt.Sprintf("noisy: level %.3g µV above %g × the median %.3g µV", lv, a.s.Channel.NoisyFactor, med)
+		default:
+			a.good[c] = true
+		}
+	}
+	for _, name := range a.s.Channels {
+		if _, ok := a.badReason[name]; ok {
+			a.bad = append(a.bad, name)
+		}
+	}
+}
+
+// usedChannels returns the indices of the good analysed channels.
+func (a *analysis) usedChannels() []int {
+	var idx []int
+	for c, ok := range a.good {
+		if ok {
+			idx = append(idx, c)
+		}
+	}
+	return idx
+}
+
+// epochs lays the epoch grid, measures each epoch on each good channel,
+// marks as bad the channels that alone fail the artefact rules in most
+// epochs (ChannelRules.MaxFailShare; the signals are then re-referenced to
+// the remaining good channels and measured again), applies the artefact
+// rules and joins the clean epochs into runs.
+func (a *analysis) epochs(rec *ingest.Recording) {
+	a.eps = epochGrid(a.periods, a.segs, a.fs, a.length, a.s.PeriodSkipSeconds)
+	a.measureEpochs()
+	if a.markFailingChannels() {
+		// y − mean_G(y) = x − mean_G(x) for y = x − mean_A(x): a second
+		// common average over the new good set G re-references exactly.
+		commonAverage(a.data, a.good, a.n, a.workers)
+		a.measureEpochs()
+	}
+	used := a.usedChannels()
+	a.rules = applyRules(a.eps, a.stats, used, a.s.Artefacts)
+	a.runs = cleanRuns(a.eps, a.length)
+	a.primary = ingest.EyesClosed
+	hasClosed, hasUnknown := false, false
+	for _, p := range a.periods {
+		hasClosed = hasClosed || p.State == ingest.EyesClosed
+		hasUnknown = hasUnknown || p.State == ingest.EyesUnknown
+	}
+	if !hasClosed && hasUnknown {
+		a.primary = ingest.EyesUnknown
+	}
+}
+
+// measureEpochs fills a.stats for the good channels.
+func (a *analysis) measureEpochs() {
+	a.stats = make([][]epochStat, len(a.data))
+	pgs := make([]*periodogram, a.workers)
+	used := a.usedChannels()
+	parallel(len(used), a.workers, func(w, i int) {
+		if pgs[w] == nil {
+			pgs[w] = newPeriodogram(a.length, a.fs)
+		}
+		c := used[i]
+		st := make([]epochStat, len(a.eps))
+		for e, ep := range a.eps {
+			st[e] = pgs[w].stat(a.data[c][ep.First:ep.First+a.length], a.s.Artefacts, a.s.Bands.Alpha)
+		}
+		a.stats[c] = st
+	})
+}
+
+// markFailingChannels marks bad every good channel that on its own fails
+// artefact rules 1–3 in more than MaxFailShare of the epochs, provided that
+// fewer than half of the good channels do (otherwise the recording, not a
+// channel, is at fault and the epochs are rejected instead). It reports
+// whether it marked any.
+func (a *analysis) markFailingChannels() bool {
+	used := a.usedChannels()
+	if len(a.eps) == 0 || len(used) < 2 {
+		return false
+	}
+	var failing []int
+	shares := map[int]float64{}
+	burst := burstLimits(a.eps, a.stats, used, a.s.Artefacts)
+	for _, c := range used {
+		n := 0
+		for e := range a.eps {
+			if failsAlone(a.stats, c, e, a.s.Artefacts, burst[c][e]) {
+				n++
+			}
+		}
+		if sh := float64(n) / float64(len(a.eps)); sh > a.s.Channel.MaxFailShare {
+			failing = append(failing, c)
+			shares[c] = sh
+		}
+	}
+	if len(failing) == 0 || 2*len(failing) >= len(used) {
+		return false
+	}
+	for _, c := range failing {
+		a.good[c] = false
+		a.badReason[a.names[c]] = fmt.Sprintf("fails the artefact rules on its own in %.0f %% of epochs (limit %.0f %%)",
+			100*shares[c], 100*a.s.Channel.MaxFailShare)
+	}
+	a.bad = a.bad[:0]
+	for _, name := range a.s.Channels {
+		if _, ok := a.badReason[name]; ok {
+			a.bad = append(a.bad, name)
+		}
+	}
+	return true
+}
+
+// quality summarises what the analysis saw.
+func (a *analysis) quality() Quality {
+	q := Quality{
+		LineFrequency:       a.lineHz,
+		LineFrequencySource: a.lineSource,
+		BadChannels:         append([]string{}, a.bad...),
+		UsedChannels:        []string{},
+		CleanSeconds:        map[ingest.EyeState]float64{},
+		EpochsTotal:         map[ingest.EyeState]int{},
+		RejectedByRule:      a.rules,
+	}
+	for _, c := range a.usedChannels() {
+		q.UsedChannels = append(q.UsedChannels, a.names[c])
+	}
+	rejected := 0
+	for _, p := range a.periods {
+		q.CleanSeconds[p.State] += 0
+		q.EpochsTotal[p.State] += 0
+	}
+	for _, e := range a.eps {
+		q.EpochsTotal[e.State]++
+		if e.Reject == "" {
+			q.CleanSeconds[e.State] += float64(a.length) / a.fs
+		} else {
+			rejected++
+		}
+	}
+	if len(a.eps) > 0 {
+		q.RejectedShare = float64(rejected) / float64(len(a.eps))
+	}
+	return q
+}

@@ -1,0 +1,120 @@
+package metrics
+
+import (
+	"bytes"
+	"math"
+	"sync"
+	"testing"
+	"time"
+
+	"longwave/ingest"
+	"longwave/ingest/synth"
+)
+
+// benchSpec is the speed yardstick's recording (issue 3 point 9): 21
+// channels (the 19 and two ear electrodes), 500 Hz, with the default
+// eye-state blocks repeated over the duration.
+func benchSpec(minutes float64) synth.Spec {
+	s := synth.Default()
+	s.SampleRate = 500
+	s.Duration = minutes * 60
+	s.Channels = append(append([]string(nil), ingest.Standard19[:]...), "A1", "A2")
+	s.Periods = nil
+	for t := 0.0; t < s.Duration; t += 120 {
+		s.Periods = append(s.Periods,
+			ingest.Period{State: ingest.EyesClosed, Start: t, End: min(t+60, s.Duration)})
+		if t+60 < s.Duration {
+			s.Periods = append(s.Periods, ingest.Period{State: ingest.EyesOpen, Start: t + 60, End: min(t+120, s.Duration)})
+		}
+	}
+	return s
+}
+
+var benchFiles sync.Map // minutes → []byte
+
+func benchFile(tb testing.TB, minutes float64) []byte {
+	tb.Helper()
+	if b, ok := benchFiles.Load(minutes); ok {
+		return b.([]byte)
+	}
+	b, err := synth.Bytes(benchSpec(minutes))
+	if err != nil {
+		tb.Fatal(err)
+	}
+	benchFiles.Store(minutes, b)
+	return b
+}
+
+func benchCompute(b *testing.B, minutes float64) {
+	file := benchFile(b, minutes)
+	b.ReportAllocs()
+	b.ResetTimer()
+	for i := 0; i < b.N; i++ {
+		b.StopTimer()
+		rec, err := ingest.Decode(bytes.NewReader(file), int64(len(file)), "bench.edf", ingest.Options{})
+		if err != nil {
+			b.Fatal(err)
+		}
+		b.StartTimer()
+		if _, err := Compute(rec, V1()); err != nil {
+			b.Fatal(err)
+		}
+	}
+	b.ReportMetric(float64(b.Elapsed().Seconds())/float64(b.N)/minutes, "s/recording-minute")
+}
+
+// BenchmarkCompute30Min times Compute (not the decode) on the 30-minute,
+// 21-channel, 500 Hz recording of the speed comparison.
+func BenchmarkCompute30Min(b *testing.B) { benchCompute(b, 30) }
+
+// BenchmarkCompute5Min is the same on 5 minutes.
+func BenchmarkCompute5Min(b *testing.B) { benchCompute(b, 5) }
+
+// maxPerMinuteGrowth bounds how much Compute's time per recording minute may
+// grow from 5 to 30 and 60 minutes (issue 3: "cost grows linearly"). Every
+// stage is a pass over the samples or over the epochs, so the ratio should
+// be near 1; 1.5 leaves room for a shared, noisy machine.
+const maxPerMinuteGrowth = 1.5
+
+// TestCostLinearInDuration measures the CPU time (user + system, all
+// goroutines) of Compute on 5, 30 and 60 minutes (19 channels, 250 Hz; best
+// of three runs each, a fresh decode before each). CPU time rather than wall
+// time: the machine is shared, and wall time there measures the queue.
+func TestCostLinearInDuration(t *testing.T) {
+	if testing.Short() {
+		t.Skip("times 95 minutes of recording; skipped with -short")
+	}
+	perMinute := map[float64]float64{}
+	for _, minutes := range []float64{5, 30, 60} {
+		s := benchSpec(minutes)
+		s.SampleRate = 250
+		s.Channels = append([]string(nil), ingest.Standard19[:]...)
+		file, err := synth.Bytes(s)
+		if err != nil {
+			t.Fatal(err)
+		}
+		best := math.Inf(1)
+		for rep := 0; rep < 3; rep++ {
+			rec, err := ingest.Decode(bytes.NewReader(file), int64(len(file)), "long.edf", ingest.Options{})
+			if err != nil {
+				t.Fatal(err)
+			}
+			start, wall := processCPU(), time.Now()
+			if _, err := Compute(rec, V1()); err != nil {
+				t.Fatal(err)
+			}
+			cpu := (processCPU() - start).Seconds()
+			if cpu <= 0 { // no CPU clock: fall back to wall time
+				cpu = time.Since(wall).Seconds()
+			}
+			best = math.Min(best, cpu)
+		}
+		perMinute[minutes] = best / minutes
+		t.Logf("%2.0f min: best of 3 %.3f s CPU, %.2f ms per recording minute", minutes, best, 1000*best/minutes)
+	}
+	for _, m := range []float64{30, 60} {
+		if g := perMinute[m] / perMinute[5]; g > maxPerMinuteGrowth {
+			t.Errorf("time per minute at %g min is %.2f× that at 5 min, want at most %g×", m, g, maxPerMinuteGrowth)
+		}
+	}
+}

@@ -1,0 +1,424 @@
+package trends
+
+import (
+	"cmp"
+	"encoding/csv"
+	"errors"
+	"fmt"
+	"io"
+	"slices"
+	"strconv"
+	"strings"
+	"time"
+
+	"longwave/metrics"
+	"longwave/server/store"
+)
+
+// DefaultFollowUpMonths is the follow-up interval when neither the patient
+// nor the cohort sets one (one EEG a year; DESIGN.md, "Who it is for").
+const DefaultFollowUpMonths = 12
+
+// RetentionWindowYears is the half-width of a follow-up year's window: the
+// visit of follow-up year k is one in [k − ½, k + ½) years after baseline, so
+// that an annual visit a few weeks early or late counts for its year.
+// Source: longwave design.
+const RetentionWindowYears = 0.5
+
+// SeriesRef names a marker series; an empty Region or State matches any (the
+// first such series in course order).
+type SeriesRef struct {
+	Marker string `json:"marker"`
+	Region string `json:"region"`
+	State  string `json:"state"`
+}
+
+// DefaultMainMarkers are the markers whose direction the cohort shows.
+func DefaultMainMarkers() []SeriesRef {
+	return []SeriesRef{
+		{Marker: metrics.PDRFrequency, Region: metrics.RegionPosterior, State: "closed"},
+		{Marker: metrics.AlphaReactivity, Region: metrics.RegionPosterior, State: "open"},
+		{Marker: metrics.ThetaAlphaRatio, Region: metrics.RegionPosterior, State: "closed"},
+		{Marker: metrics.AperiodicExponent, Region: metrics.RegionGlobal, State: "closed"},
+	}
+}
+
+// CohortPatient is a patient with all their visit records.
+type CohortPatient struct {
+	Patient store.Patient
+	Visits  []store.VisitRecord
+}
+
+// CohortOptions are what BuildCohort needs beside the patients.
+type CohortOptions struct {
+	Today time.Time
+	// FollowUpMonths of the cohort, used for patients that set none (0: 12).
+	FollowUpMonths  int
+	SettingsVersion string
+	SettingsHash    string
+	// Reliability table (nil: DefaultReliability()).
+	Reliability []Reliability
+	// Markers whose direction each row shows (nil: DefaultMainMarkers()).
+	Markers []SeriesRef
+}
+
+// MarkerDirection is a row's summary of one main marker.
+type MarkerDirection struct {
+	Marker         string    `json:"marker"`
+	Region         string    `json:"region"`
+	State          string    `json:"state"`
+	Points         int       `json:"points"` // comparable points
+	Direction      Direction `json:"direction"`
+	DirectionBasis string    `json:"direction_basis"`
+	HasSlope       bool      `json:"has_slope"`
+	SlopePerYear   float64   `json:"slope_per_year"`
+	RCIKnown       bool      `json:"rci_known"`
+	RC             float64   `json:"rc"`
+	ReliableChange bool      `json:"reliable_change"`
+}
+
+// CohortRow is one patient's follow-up.
+type CohortRow struct {
+	PatientID      int64  `json:"patient_id"`
+	Code           string `json:"code"`
+	Group          string `json:"group"`
+	Cohort         string `json:"cohort"`
+	FollowUpMonths int    `json:"follow_up_months"`
+	Visits         int    `json:"visits"`
+	// ComparableVisits have no not_comparable flag at all.
+	ComparableVisits int    `json:"comparable_visits"`
+	FirstVisit       string `json:"first_visit"` // "" without dated visits
+	LastVisit        string `json:"last_visit"`
+	NextDue          string `json:"next_due"`
+	Overdue          bool   `json:"overdue"`
+	DaysOverdue      int    `json:"days_overdue"` // 0 when not overdue
+	// LatestFlags are all flags of the last visit; Flagged is true when
+	// there are any.
+	LatestFlags []metrics.Flag    `json:"latest_flags"`
+	Flagged     bool              `json:"flagged"`
+	Markers     []MarkerDirection `json:"markers"`
+	// ReliableChange is true when any main marker shows a reliable change.
+	ReliableChange bool `json:"reliable_change"`
+}
+
+// RetentionYear is the share of patients with a visit in follow-up year
+// Year among those whose baseline is at least Year years before today.
+type RetentionYear struct {
+	Year     int     `json:"year"`
+	Eligible int     `json:"eligible"`
+	Retained int     `json:"retained"`
+	Share    float64 `json:"share"`
+}
+
+// Cohort is the follow-up of a list of patients.
+type Cohort struct {
+	Today          string      `json:"today"`
+	FollowUpMonths int         `json:"follow_up_months"`
+	Markers        []SeriesRef `json:"markers"`
+	Rows           []CohortRow `json:"rows"`
+	Patients       int         `json:"patients"`
+	Visits         int         `json:"visits"`
+	NonComparable  int         `json:"non_comparable_visits"`
+	// NonComparableShare is NonComparable/Visits (0 without visits).
+	NonComparableShare float64         `json:"non_comparable_share"`
+	Retention          []RetentionYear `json:"retention"`
+	Advisory           string          `json:"advisory"`
+}
+
+// BuildCohort makes one row per patient (in the given order) and the
+// cohort's retention and share of non-comparable visits. Retention counts
+// every visit, comparable or not.
+func BuildCohort(patients []CohortPatient, opt CohortOptions) Cohort {
+	table := opt.Reliability
+	if table == nil {
+		table = DefaultReliability()
+	}
+	refs := opt.Markers
+	if refs == nil {
+		refs = DefaultMainMarkers()
+	}
+	def := opt.FollowUpMonths
+	if def <= 0 {
+		def = DefaultFollowUpMonths
+	}
+	today := dateOf(opt.Today)
+	c := Cohort{Today: today.String(), FollowUpMonths: def, Markers: refs, Patients: len(patients),
+		Rows: make([]CohortRow, 0, len(patients)), Retention: []RetentionYear{}, Advisory: AdvisoryCourse}
+	type follow struct {
+		base  civilDate
+		years []float64 // every dated visit, years after baseline
+	}
+	var follows []follow
+	for _, cp := range patients {
+		p := cp.Patient
+		as := assess(cp.Visits, opt.SettingsVersion, opt.SettingsHash)
+		months := followUpMonths(p, def)
+		row := CohortRow{PatientID: p.ID, Code: p.Code, Group: p.Group, Cohort: p.Cohort, FollowUpMonths: months,
+			Visits: len(as), LatestFlags: []metrics.Flag{}, Markers: make([]MarkerDirection, 0, len(refs))}
+		var f follow
+		dated := 0
+		for _, a := range as {
+			if a.comparable {
+				row.ComparableVisits++
+			}
+			if !a.dateOK {
+				continue
+			}
+			if dated == 0 {
+				f.base = a.date
+				row.FirstVisit = a.rec.Visit.Date
+			}
+			dated++
+			f.years = append(f.years, float64(a.date.daysSince(f.base))/DaysPerYear)
+			row.LastVisit = a.rec.Visit.Date
+		}
+		if dated > 0 {
+			follows = append(follows, f)
+		}
+		c.Visits += len(as)
+		c.NonComparable += len(as) - row.ComparableVisits
+		row.NextDue, row.DaysOverdue = nextDue(as, months, today)
+		row.Overdue = row.DaysOverdue > 0
+		if n := len(as); n > 0 {
+			row.LatestFlags = nonNil(slices.Clone(as[n-1].flags))
+		}
+		row.Flagged = len(row.LatestFlags) > 0
+		for _, ref := range refs {
+			row.Markers = append(row.Markers, directionOf(as, ref, table))
+			if row.Markers[len(row.Markers)-1].ReliableChange {
+				row.ReliableChange = true
+			}
+		}
+		c.Rows = append(c.Rows, row)
+	}
+	if c.Visits > 0 {
+		c.NonComparableShare = float64(c.NonComparable) / float64(c.Visits)
+	}
+	// Retention by follow-up year.
+	for k := 1; ; k++ {
+		ry := RetentionYear{Year: k}
+		for _, f := range follows {
+			if today.before(f.base.addYears(k)) {
+				continue
+			}
+			ry.Eligible++
+			lo, hi := float64(k)-RetentionWindowYears, float64(k)+RetentionWindowYears
+			for _, y := range f.years {
+				if y >= lo && y < hi {
+					ry.Retained++
+					break
+				}
+			}
+		}
+		if ry.Eligible == 0 {
+			break
+		}
+		ry.Share = float64(ry.Retained) / float64(ry.Eligible)
+		c.Retention = append(c.Retention, ry)
+	}
+	return c
+}
+
+// directionOf summarises one main marker of a patient.
+func directionOf(as []assessed, ref SeriesRef, table []Reliability) MarkerDirection {
+	id, ok := findSeries(as, ref)
+	md := MarkerDirection{Marker: ref.Marker, Region: ref.Region, State: ref.State,
+		Direction: DirectionUnknown, DirectionBasis: "marker not found in any visit"}
+	if !ok {
+		return md
+	}
+	md.Region, md.State = id.region, id.state
+	cps := make([]ChangePoint, 0, len(as))
+	years := make([]float64, 0, len(as))
+	values := make([]float64, 0, len(as))
+	var first civilDate
+	for i := range as {
+		v, ok := comparableValue(&as[i], id)
+		if !ok || !as[i].dateOK {
+			continue
+		}
+		if len(cps) == 0 {
+			first = as[i].date
+		}
+		cps = append(cps, ChangePoint{VisitID: as[i].rec.Visit.ID, Date: as[i].rec.Visit.Date, Value: v})
+		years = append(years, float64(as[i].date.daysSince(first))/DaysPerYear)
+		values = append(values, v)
+	}
+	rel, relOK := findReliability(table, id.name, id.region, id.state)
+	ch := changeFrom(cps, years, values, rel, relOK, ExpectedRate{})
+	md.Points, md.Direction, md.DirectionBasis = ch.Points, ch.Direction, ch.DirectionBasis
+	md.HasSlope, md.SlopePerYear = ch.Slope.Known, ch.Slope.PerYear
+	md.RCIKnown, md.RC, md.ReliableChange = ch.Reliable.Known, ch.Reliable.RC, ch.Reliable.Reliable
+	return md
+}
+
+// comparableValue is pointOf without the reasons: the marker's value and
+// whether it is comparable at this visit.
+func comparableValue(a *assessed, id seriesID) (float64, bool) {
+	for _, m := range a.rec.Markers {
+		if m.Name != id.name || m.Region != id.region || string(m.State) != id.state {
+			continue
+		}
+		if !m.Computable {
+			return 0, false
+		}
+		for _, f := range a.flags {
+			if f.Severity == metrics.NotComparable && affects(f.Markers, id.name, id.region, id.state) {
+				return 0, false
+			}
+		}
+		return m.Value, true
+	}
+	return 0, false
+}
+
+func findSeries(as []assessed, ref SeriesRef) (seriesID, bool) {
+	var found []seriesID
+	for _, a := range as {
+		for _, m := range a.rec.Markers {
+			if m.Name == ref.Marker && (ref.Region == "" || m.Region == ref.Region) && (ref.State == "" || string(m.State) == ref.State) {
+				id := seriesID{m.Name, m.Region, string(m.State)}
+				if ref.Region != "" && ref.State != "" {
+					return id, true
+				}
+				if !slices.Contains(found, id) {
+					found = append(found, id)
+				}
+			}
+		}
+	}
+	if len(found) == 0 {
+		return seriesID{}, false
+	}
+	sortSeriesIDs(found)
+	return found[0], true
+}
+
+// Sort keys of SortRows.
+const (
+	SortByCode       = "code"
+	SortByOverdue    = "overdue"    // days overdue
+	SortByLastVisit  = "last_visit" // date of the last visit
+	SortByNextDue    = "next_due"
+	SortByVisits     = "visits"
+	SortByComparable = "comparable_visits"
+)
+
+// ErrSortKey is returned by SortRows for an unknown key.
+var ErrSortKey = errors.New("trends: unknown sort key")
+
+// SortRows sorts rows in place by key, ascending or descending, ties broken
+// by code ascending. Empty dates sort before every date.
+func SortRows(rows []CohortRow, key string, descending bool) error {
+	var by func(a, b CohortRow) int
+	switch key {
+	case SortByCode:
+		by = func(a, b CohortRow) int { return strings.Compare(a.Code, b.Code) }
+	case SortByOverdue:
+		by = func(a, b CohortRow) int { return cmp.Compare(a.DaysOverdue, b.DaysOverdue) }
+	case SortByLastVisit:
+		by = func(a, b CohortRow) int { return strings.Compare(a.LastVisit, b.LastVisit) }
+	case SortByNextDue:
+		by = func(a, b CohortRow) int { return strings.Compare(a.NextDue, b.NextDue) }
+	case SortByVisits:
+		by = func(a, b CohortRow) int { return cmp.Compare(a.Visits, b.Visits) }
+	case SortByComparable:
+		by = func(a, b CohortRow) int { return cmp.Compare(a.ComparableVisits, b.ComparableVisits) }
+	default:
+		return fmt.Errorf("%w %q: want code, overdue, last_visit, next_due, visits or comparable_visits", ErrSortKey, key)
+	}
+	slices.SortStableFunc(rows, func(a, b CohortRow) int {
+		c := by(a, b)
+		if descending {
+			c = -c
+		}
+		return cmp.Or(c, strings.Compare(a.Code, b.Code))
+	})
+	return nil
+}
+
+// RowFilter keeps the rows that meet every filter set.
+type RowFilter struct {
+	Overdue        bool `json:"overdue"`
+	Flagged        bool `json:"flagged"`
+	ReliableChange bool `json:"reliable_change"`
+}
+
+// FilterRows returns the rows that meet f, in order (a new slice).
+func FilterRows(rows []CohortRow, f RowFilter) []CohortRow {
+	out := []CohortRow{}
+	for _, r := range rows {
+		if (f.Overdue && !r.Overdue) || (f.Flagged && !r.Flagged) || (f.ReliableChange && !r.ReliableChange) {
+			continue
+		}
+		out = append(out, r)
+	}
+	return out
+}
+
+// WriteCohortCSV writes rows as CSV (RFC 4180, comma, header line first):
+// code, group, cohort, follow_up_months, visits, comparable_visits,
+// first_visit, last_visit, next_due, days_overdue, latest_flags (rule names
+// joined by ";"), then per main marker of the first row
+// <marker>/<region>/<state>_direction, _slope_per_year (empty when none),
+// _rc (empty when none), _reliable, and reliable_change. Text cells that a
+// spreadsheet would read as a formula (starting with = + - @) get a leading
+// apostrophe.
+func WriteCohortCSV(w io.Writer, rows []CohortRow) error {
+	cw := csv.NewWriter(w)
+	head := []string{"code", "group", "cohort", "follow_up_months", "visits", "comparable_visits",
+		"first_visit", "last_visit", "next_due", "days_overdue", "latest_flags"}
+	var markers []MarkerDirection
+	if len(rows) > 0 {
+		markers = rows[0].Markers
+	}
+	for _, m := range markers {
+		k := seriesKey(m.Marker, m.Region, m.State)
+		head = append(head, k+"_direction", k+"_slope_per_year", k+"_rc", k+"_reliable")
+	}
+	head = append(head, "reliable_change")
+	if err := cw.Write(head); err != nil {
+		return fmt.Errorf("trends: cohort csv: %w", err)
+	}
+	for i, r := range rows {
+		var rules []string
+		for _, f := range r.LatestFlags {
+			if !slices.Contains(rules, f.Rule) {
+				rules = append(rules, f.Rule)
+			}
+		}
+		rec := []string{cell(r.Code), cell(r.Group), cell(r.Cohort), strconv.Itoa(r.FollowUpMonths),
+			strconv.Itoa(r.Visits), strconv.Itoa(r.ComparableVisits), r.FirstVisit, r.LastVisit, r.NextDue,
+			strconv.Itoa(r.DaysOverdue), strings.Join(rules, ";")}
+		if len(r.Markers) != len(markers) {
+			return fmt.Errorf("trends: cohort csv: row %d (%s): %d main markers, the first row has %d", i+1, r.Code, len(r.Markers), len(markers))
+		}
+		for _, m := range r.Markers {
+			slope, rc := "", ""
+			if m.HasSlope {
+				slope = strconv.FormatFloat(m.SlopePerYear, 'g', 6, 64)
+			}
+			if m.RCIKnown {
+				rc = strconv.FormatFloat(m.RC, 'g', 6, 64)
+			}
+			rec = append(rec, string(m.Direction), slope, rc, strconv.FormatBool(m.ReliableChange))
+		}
+		rec = append(rec, strconv.FormatBool(r.ReliableChange))
+		if err := cw.Write(rec); err != nil {
+			return fmt.Errorf("trends: cohort csv: row %d: %w", i+1, err)
+		}
+	}
+	cw.Flush()
+	if err := cw.Error(); err != nil {
+		return fmt.Errorf("trends: cohort csv: %w", err)
+	}
+	return nil
+}
+
+// cell guards a text cell against spreadsheet formula injection.
+func cell(s string) string {
+	if s != "" && strings.ContainsAny(s[:1], "=+-@\t\r") {
+		return "'" + s
+	}
+	return s
+}

@@ -1,0 +1,89 @@
+// Package trends turns a patient's stored visits into a course: which visits
+// (and which markers of a visit) can be compared, where each value lies
+// against age-adjusted reference ranges with their sources, and how each
+// marker changed over the comparable visits. It also builds the cohort
+// follow-up and local reference ranges from a clinic's control participants.
+// It knows nothing of HTTP or SQL: plain values in, plain values out, every
+// exported value a struct with JSON tags (no maps).
+//
+// # Comparability (rules.go, thresholds.go)
+//
+//	CheckVisit(VisitQuality{Conditions, Quality, Markers}) []metrics.Flag   // single-visit gates, run at intake
+//	CheckSettings(v store.VisitRecord, version, hash string) []metrics.Flag // other processing settings
+//	CompareVisits(prev, cur store.VisitRecord) []metrics.Flag              // cautions between two visits
+//	Rules() []Rule                                                         // the rule catalogue for people
+//	FlagAffects(f metrics.Flag, m metrics.Marker) bool
+//
+// A flag's Markers are marker names, "name/region" or "name/region/state";
+// empty means every marker. A point is comparable for a marker when the
+// marker is computable and no not_comparable flag concerns it; cautions are
+// shown but never exclude a point. All thresholds and their sources are in
+// thresholds.go.
+//
+// # Reference ranges (ranges.go, rangefile.go)
+//
+//	NewRanges(rows []store.ReferenceRange) (*Ranges, error)        // validates; errors name the row
+//	ParseRangesTSV(r io.Reader, set string) ([]store.ReferenceRange, error) // a clinic's own file; errors name the line
+//	(*Ranges).Lookup(marker, region, state string, age float64) RangeLookup
+//	(RangeLookup).Place(value float64) RangeLookup                  // below/within/above, z where mean and SD exist
+//	NoRangeReason(marker string) string
+//
+// The literature rows of migrations/0002_reference_ranges.sql sit in the sets
+// LiteratureSets (one source per set, so that overlapping populations do not
+// overlap within a set); load the rows of all of them into one NewRanges.
+// Every RangeLookup carries Advisory ("advisory, literature reference, not a
+// diagnosis", or the clinic equivalent) and each match its Citation and
+// Status.
+//
+// # Change over time (change.go)
+//
+//	FitSlope(years, values []float64) Slope              // OLS slope per year, 95 % CI from Student's t (gonum distuv)
+//	ReliableChangeIndex(x1, x2 float64, rel Reliability) ReliableChange // Jacobson & Truax (1991)
+//	ComputeChange(points []ChangePoint, rel Reliability, relOK bool, exp ExpectedRate) Change
+//	TQuantile975(df int) float64
+//	DefaultReliability() []Reliability                   // provisional PDR row only
+//
+// # Course (course.go) — for the patient screen and the API
+//
+//	BuildCourse(p store.Patient, visits []store.VisitRecord, opt CourseOptions) Course
+//
+//	CourseOptions{Ranges *Ranges; LocalRanges *LocalRanges; SettingsVersion, SettingsHash string;
+//	              Reliability []Reliability (nil: default); Today time.Time; FollowUpMonths int}
+//	Course{Patient PatientInfo; SettingsVersion, SettingsHash, Today string; Visits []VisitVerdict;
+//	       Series []Series; NextDue string; DaysOverdue int; Advisory string}
+//	VisitVerdict{VisitID; Date; AgeYears; AgeKnown; Context; Verdict ("comparable",
+//	       "comparable_with_cautions", "partly_comparable", "not_comparable"); Comparable bool;
+//	       Flags []metrics.Flag; SettingsVersion; SettingsHash; Conditions ingest.Conditions; Quality QualitySummary}
+//	Series{Key, Marker, Region, State, Unit string; Points []SeriesPoint; Change Change}
+//	SeriesPoint{VisitID; Date; AgeYears; AgeKnown; Value; Unit; Computable; Comparable;
+//	       Reasons, Cautions []string; Literature RangeLookup; Local LocalCheck}
+//	Change{Points; Baseline…/Latest… (VisitID, Date, Value); HasFromBaseline; FromBaseline; Years;
+//	       Slope Slope; Reliable ReliableChange; Expected ExpectedForAge; Direction; DirectionBasis}
+//
+// Visits are in date order; every series has one point per visit (a visit
+// without the marker gives a point that is not computable), so charts share
+// an x axis.
+//
+// # Cohort (cohort.go) — for the cohort screen and `longwave export`
+//
+//	BuildCohort(patients []CohortPatient, opt CohortOptions) Cohort
+//	SortRows(rows []CohortRow, key string, descending bool) error // code, overdue, last_visit, next_due, visits, comparable_visits
+//	FilterRows(rows []CohortRow, f RowFilter) []CohortRow        // RowFilter{Overdue, Flagged, ReliableChange}
+//	WriteCohortCSV(w io.Writer, rows []CohortRow) error
+//
+//	CohortPatient{Patient store.Patient; Visits []store.VisitRecord}
+//	CohortOptions{Today time.Time; FollowUpMonths int (0: 12); SettingsVersion, SettingsHash string;
+//	              Reliability []Reliability; Markers []SeriesRef (nil: DefaultMainMarkers())}
+//	Cohort{Today; FollowUpMonths; Markers; Rows []CohortRow; Patients; Visits; NonComparable;
+//	       NonComparableShare; Retention []RetentionYear; Advisory}
+//	CohortRow{PatientID; Code; Group; Cohort; FollowUpMonths; Visits; ComparableVisits; FirstVisit;
+//	       LastVisit; NextDue; Overdue; DaysOverdue; LatestFlags; Flagged; Markers []MarkerDirection; ReliableChange}
+//
+// # Local ranges (local.go)
+//
+//	BuildLocalRanges(patients []CohortPatient, opt LocalOptions) *LocalRanges
+//	(*LocalRanges).Check(marker, region, state string, age float64, ageKnown bool, value float64, computable bool) LocalCheck
+//	FitPrediction(ages, values []float64) (Prediction, error); (Prediction).At(x0) (yhat, lower, upper)
+//
+// Dates are civil dates "YYYY-MM-DD"; years between dates are days/365.25.
+package trends

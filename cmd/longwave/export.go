@@ -1,0 +1,255 @@
+package main
+
+import (
+	"encoding/csv"
+	"encoding/json"
+	"flag"
+	"fmt"
+	"io"
+	"os"
+	"strconv"
+	"strings"
+	"time"
+
+	"longwave/ingest"
+	"longwave/metrics"
+	"longwave/server/store"
+	"longwave/trends"
+)
+
+// safeHarborAgeCap: HIPAA Safe Harbor (45 CFR 164.514(b)(2)(i)(C)) removes
+// ages over 89, which must be aggregated into a single category of 90 or
+// older; an exported age of 90 means "90 or older".
+const safeHarborAgeCap = 90
+
+// exportRow is one visit and marker, the unit a statistician works on.
+type exportRow struct {
+	Patient         string   `json:"patient"`
+	Sex             string   `json:"sex"`
+	Group           string   `json:"group"`
+	Cohort          string   `json:"cohort"`
+	VisitDate       string   `json:"visit_date,omitempty"`
+	DaysSinceFirst  *int     `json:"days_since_first_visit,omitempty"`
+	AgeYears        *float64 `json:"age_years"`
+	Marker          string   `json:"marker"`
+	Region          string   `json:"region"`
+	State           string   `json:"state"`
+	Value           *float64 `json:"value"`
+	Unit            string   `json:"unit"`
+	Computable      bool     `json:"computable"`
+	Reason          string   `json:"reason"`
+	SettingsVersion string   `json:"settings_version"`
+	SettingsHash    string   `json:"settings_hash"`
+	SampleRate      float64  `json:"sample_rate_hz"`
+	UVPerStep       float64  `json:"uv_per_step"`
+	HighPass        string   `json:"high_pass_hz"`
+	LowPass         string   `json:"low_pass_hz"`
+	LineFrequency   float64  `json:"line_frequency_hz"`
+	Reference       string   `json:"reference"`
+	Equipment       string   `json:"equipment,omitempty"`
+	PeriodSource    string   `json:"period_source"`
+	CleanClosed     float64  `json:"clean_closed_s"`
+	CleanOpen       float64  `json:"clean_open_s"`
+	RejectedShare   float64  `json:"rejected_share"`
+	Flags           string   `json:"flags"`
+	Comparable      string   `json:"comparable"`
+}
+
+func init() {
+	register(&command{
+		name: "export",
+		summary: "Write one row per visit and marker, with conditions and flags, as CSV or JSON for R or pandas.\n" +
+			"--deidentify replaces dates by days since the patient's first visit, caps ages at 90 and leaves out the equipment text.",
+		more: `Columns: patient, sex, group, cohort, visit_date (or days_since_first_visit),
+age_years, marker, region, state, value, unit, computable, reason,
+settings_version, settings_hash, sample_rate_hz, uv_per_step, high_pass_hz,
+low_pass_hz, line_frequency_hz, reference, equipment, period_source,
+clean_closed_s, clean_open_s, rejected_share, flags (rule:severity joined by
+"; "), comparable (yes when no not-comparable flag concerns the marker, it
+was computable, and it was made by the current settings). A value that is
+not computable is empty, never a number. Free-text visit context is never
+exported. The age cap follows the HIPAA Safe Harbor rule: ages over 89 are
+aggregated into 90 or older. The patient code is the clinic's pseudonym and
+is kept.
+`,
+		setup: func(fs *flag.FlagSet, e *env) func([]string) error {
+			db := dbFlag(fs)
+			format := fs.String("format", "csv", "output `FORMAT`: csv or json")
+			deid := fs.Bool("deidentify", false, "replace dates by days since the first visit, cap ages at 90, leave out equipment")
+			outPath := fs.String("out", "", "write to `FILE` instead of standard output")
+			return func(args []string) error {
+				if len(args) > 0 {
+					return usagef("export takes no arguments")
+				}
+				if *format != "csv" && *format != "json" {
+					return usagef("--format %q: want csv or json", *format)
+				}
+				st, err := openStore(*db)
+				if err != nil {
+					return err
+				}
+				defer st.Close()
+				courses, err := st.AllVisitRecords(e.ctx)
+				if err != nil {
+					return err
+				}
+				settings := metrics.V1()
+				rows, err := exportRows(courses, settings.Version, settings.Hash(), *deid)
+				if err != nil {
+					return err
+				}
+				w := e.stdout
+				var f *os.File
+				if *outPath != "" {
+					if f, err = os.Create(*outPath); err != nil {
+						return err
+					}
+					w = f
+				}
+				if *format == "csv" {
+					err = writeCSV(w, rows, *deid)
+				} else {
+					enc := json.NewEncoder(w)
+					enc.SetIndent("", " ")
+					err = enc.Encode(rows)
+				}
+				if f != nil {
+					if cerr := f.Close(); err == nil {
+						err = cerr
+					}
+					if err != nil {
+						os.Remove(*outPath)
+					}
+				}
+				return err
+			}
+		},
+	})
+}
+
+func exportRows(courses []store.PatientCourse, version, hash string, deid bool) ([]exportRow, error) {
+	rows := []exportRow{}
+	for _, pc := range courses {
+		var first time.Time
+		for i, v := range pc.Visits {
+			d, err := time.Parse(time.DateOnly, v.Visit.Date)
+			if err != nil {
+				return nil, fmt.Errorf("visit %d: date %q: %w", v.Visit.ID, v.Visit.Date, err)
+			}
+			if i == 0 {
+				first = d // visits come ordered by date
+			}
+			flags := append([]metrics.Flag(nil), v.Flags...)
+			flags = append(flags, trends.CheckSettings(v, version, hash)...)
+			if i > 0 {
+				flags = append(flags, trends.CompareVisits(pc.Visits[i-1], v)...)
+			}
+			c, q := v.Conditions, v.Quality
+			base := exportRow{
+				Patient: pc.Patient.Code, Sex: pc.Patient.Sex, Group: pc.Patient.Group, Cohort: pc.Patient.Cohort,
+				SettingsVersion: v.SettingsVersion, SettingsHash: v.SettingsHash,
+				SampleRate: c.SampleRate, UVPerStep: c.UVPerStep,
+				HighPass: edge(c.Filters.HighPass), LowPass: edge(c.Filters.LowPass),
+				LineFrequency: lineFrequency(c, q), Reference: c.Reference, PeriodSource: string(c.PeriodSource),
+				CleanClosed: q.CleanSeconds[ingest.EyesClosed], CleanOpen: q.CleanSeconds[ingest.EyesOpen],
+				RejectedShare: q.RejectedShare,
+			}
+			if deid {
+				days := int(d.Sub(first).Hours()/24 + 0.5)
+				base.DaysSinceFirst = &days
+			} else {
+				base.VisitDate = v.Visit.Date
+				base.Equipment = c.Equipment
+			}
+			if v.Visit.AgeKnown {
+				age := v.Visit.AgeYears
+				if deid && age >= safeHarborAgeCap {
+					age = safeHarborAgeCap
+				}
+				base.AgeYears = &age
+			}
+			for _, m := range v.Markers {
+				r := base
+				r.Marker, r.Region, r.State, r.Unit = m.Name, m.Region, string(m.State), m.Unit
+				r.Computable, r.Reason = m.Computable, m.Reason
+				if m.Computable {
+					val := m.Value
+					r.Value = &val
+				}
+				var names []string
+				comparable := m.Computable
+				for _, f := range flags {
+					if !trends.FlagAffects(f, m) {
+						continue
+					}
+					names = append(names, f.Rule+":"+string(f.Severity))
+					if f.Severity == metrics.NotComparable {
+						comparable = false
+					}
+				}
+				r.Flags = strings.Join(names, "; ")
+				r.Comparable = "no"
+				if comparable {
+					r.Comparable = "yes"
+				}
+				rows = append(rows, r)
+			}
+		}
+	}
+	return rows, nil
+}
+
+func lineFrequency(c ingest.Conditions, q metrics.Quality) float64 {
+	if q.LineFrequency > 0 {
+		return q.LineFrequency
+	}
+	return c.LineFrequency
+}
+
+func edge(f ingest.Frequency) string {
+	if !f.Known {
+		return ""
+	}
+	return num(f.Hz)
+}
+
+func num(v float64) string { return strconv.FormatFloat(v, 'g', -1, 64) }
+
+func writeCSV(w io.Writer, rows []exportRow, deid bool) error {
+	cw := csv.NewWriter(w)
+	head := []string{"patient", "sex", "group", "cohort", "visit_date", "age_years", "marker", "region", "state",
+		"value", "unit", "computable", "reason", "settings_version", "settings_hash", "sample_rate_hz", "uv_per_step",
+		"high_pass_hz", "low_pass_hz", "line_frequency_hz", "reference", "equipment", "period_source",
+		"clean_closed_s", "clean_open_s", "rejected_share", "flags", "comparable"}
+	if deid {
+		head[4] = "days_since_first_visit"
+		head = append(head[:21], head[22:]...) // no equipment
+	}
+	if err := cw.Write(head); err != nil {
+		return err
+	}
+	opt := func(p *float64) string {
+		if p == nil {
+			return ""
+		}
+		return num(*p)
+	}
+	for _, r := range rows {
+		when := r.VisitDate
+		if deid {
+			when = strconv.Itoa(*r.DaysSinceFirst)
+		}
+		rec := []string{r.Patient, r.Sex, r.Group, r.Cohort, when, opt(r.AgeYears), r.Marker, r.Region, r.State,
+			opt(r.Value), r.Unit, strconv.FormatBool(r.Computable), r.Reason, r.SettingsVersion, r.SettingsHash,
+			num(r.SampleRate), num(r.UVPerStep), r.HighPass, r.LowPass, num(r.LineFrequency), r.Reference, r.Equipment,
+			r.PeriodSource, num(r.CleanClosed), num(r.CleanOpen), num(r.RejectedShare), r.Flags, r.Comparable}
+		if deid {
+			rec = append(rec[:21], rec[22:]...)
+		}
+		if err := cw.Write(rec); err != nil {
+			return err
+		}
+	}
+	cw.Flush()
+	return cw.Error()
+}

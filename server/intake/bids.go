@@ -1,0 +1,306 @@
+package intake
+
+import (
+	"context"
+	"fmt"
+	"io"
+	"runtime"
+	"sort"
+	"strings"
+	"sync"
+	"time"
+
+	"longwave/ingest"
+	"longwave/ingest/bids"
+	"longwave/server/store"
+)
+
+// BIDSOptions configure IngestBIDS.
+type BIDSOptions struct {
+	// Workers decode and analyse visits in parallel (0: GOMAXPROCS). One
+	// goroutine stores them: SQLite has one writer.
+	Workers int
+	// CodePrefix is put before each participant_id to make the patient
+	// code ("" none), so that two datasets' "sub-01" stay apart.
+	CodePrefix string
+	// Cohort and Group given to every patient of the dataset ("" none).
+	Cohort, Group string
+	// Progress, when set, is called after each visit (stored, skipped or
+	// failed) with the count done and the total, from one goroutine.
+	Progress func(done, total int)
+}
+
+// BIDSSummary says what a dataset ingest did.
+type BIDSSummary struct {
+	Visits   int       // visits found in the dataset
+	Ingested int       // stored now
+	Known    int       // skipped: their files were stored already
+	Failed   []Failure // visits not stored, and files the reader refused
+	Elapsed  time.Duration
+}
+
+// IngestBIDS ingests a BIDS-EEG dataset: participants become patients (code
+// = CodePrefix + participant_id, sex from participants.tsv), sessions
+// become visits. BIDS gives the age at the session, not a birth date, so the
+// age is stored on each visit (the participants.tsv age, plus the time from
+// the participant's first dated session) and the birth year is left 0 rather
+// than invented. The visit date is the session's acquisition date (the
+// subject's sessions.tsv acq_time); a session without one fails with that
+// reason rather than get an invented date, since a course is drawn over
+// dates and longwave keeps one visit per patient per day.
+//
+// Visits are decoded and analysed on Workers goroutines while this goroutine
+// stores them one by one, each in its own transaction; a failing visit is
+// reported and the rest go on. The error is non-nil only when the dataset
+// cannot be read at all or ctx ends.
+func (p *Pipeline) IngestBIDS(ctx context.Context, root string, opt BIDSOptions) (BIDSSummary, error) {
+	start := time.Now()
+	ds, err := bids.Read(root, p.options(""))
+	if err != nil {
+		return BIDSSummary{}, fmt.Errorf("intake: %w", err)
+	}
+	sum := BIDSSummary{Visits: len(ds.Visits)}
+	for _, pr := range ds.Problems {
+		sum.Failed = append(sum.Failed, Failure{Visit: pr.Path, Err: pr.Err})
+	}
+	jobs := planBIDS(ds, opt)
+	workers := opt.Workers
+	if workers <= 0 {
+		workers = runtime.GOMAXPROCS(0)
+	}
+
+	type result struct {
+		job  *bidsJob
+		prep *prepared
+		out  Outcome
+		skip bool
+		err  error
+	}
+	ctx, cancel := context.WithCancel(ctx)
+	defer cancel()
+	jobCh := make(chan *bidsJob)
+	resCh := make(chan result)
+	var wg sync.WaitGroup
+	for w := 0; w < workers; w++ {
+		wg.Add(1)
+		go func() {
+			defer wg.Done()
+			for j := range jobCh {
+				r := result{job: j}
+				if j.err != nil {
+					r.err = j.err
+				} else if r.err = hashParts(j.parts); r.err == nil {
+					r.out, r.skip, r.err = p.claim(ctx, j.parts)
+					if r.err == nil && !r.skip {
+						visit := j.visit
+						if r.err = setFormats(j.parts, visit); r.err == nil {
+							r.prep, r.err = p.prepare(j.req, j.parts, func() (*ingest.Recording, error) {
+								return visit.Load(p.options(""))
+							})
+						}
+						if r.err != nil {
+							p.release(j.parts)
+						}
+					}
+				}
+				select {
+				case resCh <- r:
+				case <-ctx.Done():
+					if r.prep != nil {
+						p.release(j.parts)
+					}
+					return
+				}
+			}
+		}()
+	}
+	go func() {
+		defer close(jobCh)
+		for _, j := range jobs {
+			select {
+			case jobCh <- j:
+			case <-ctx.Done():
+				return
+			}
+		}
+	}()
+	go func() { wg.Wait(); close(resCh) }()
+
+	done := 0
+	for r := range resCh {
+		switch {
+		case r.err != nil:
+			sum.Failed = append(sum.Failed, Failure{Visit: r.job.label, Err: r.err})
+		case r.skip:
+			sum.Known++
+		default:
+			_, err := p.commit(ctx, r.prep)
+			p.release(r.job.parts)
+			if err != nil {
+				sum.Failed = append(sum.Failed, Failure{Visit: r.job.label, Err: err})
+			} else {
+				sum.Ingested++
+			}
+		}
+		done++
+		if opt.Progress != nil {
+			opt.Progress(done, len(jobs))
+		}
+		if ctx.Err() != nil {
+			break
+		}
+	}
+	sum.Elapsed = time.Since(start)
+	if err := ctx.Err(); err != nil {
+		return sum, err
+	}
+	return sum, nil
+}
+
+// bidsJob is one session to ingest.
+type bidsJob struct {
+	label string
+	visit bids.Visit
+	req   Request
+	parts []part
+	err   error // a problem found while planning (no date, odd runs)
+}
+
+// planBIDS turns the dataset's sessions into requests: patient fields from
+// participants.tsv, the date from acq_time, the age from the participant's
+// age at the first dated session plus the years since.
+func planBIDS(ds *bids.Dataset, opt BIDSOptions) []*bidsJob {
+	people := map[string]bids.Participant{}
+	for _, pt := range ds.Participants {
+		people[normSub(pt.ID)] = pt
+	}
+	first := map[string]time.Time{}
+	dates := make([]time.Time, len(ds.Visits))
+	for i, v := range ds.Visits {
+		if d, ok := acqDate(v.AcqTime); ok {
+			dates[i] = d
+			if f, seen := first[normSub(v.Subject)]; !seen || d.Before(f) {
+				first[normSub(v.Subject)] = d
+			}
+		}
+	}
+	jobs := make([]*bidsJob, 0, len(ds.Visits))
+	for i, v := range ds.Visits {
+		sub := normSub(v.Subject)
+		label := sub
+		if v.Session != "" {
+			label += "/" + normSes(v.Session)
+		}
+		j := &bidsJob{label: label, visit: v}
+		pt := people[sub]
+		j.req = Request{PatientCode: opt.CodePrefix + sub, Sex: pt.Sex, Cohort: opt.Cohort, Group: opt.Group}
+		if dates[i].IsZero() {
+			j.err = fmt.Errorf("intake: %s: no acquisition date (acq_time in the subject's sessions.tsv); a visit needs a date", label)
+		} else {
+			j.req.Date = dates[i].Format(time.DateOnly)
+			if pt.AgeKnown {
+				j.req.AgeYears = pt.Age + dates[i].Sub(first[sub]).Hours()/24/365.2425
+				j.req.AgeKnown = true
+			}
+		}
+		if j.err == nil {
+			j.parts, j.err = bidsParts(label, v)
+		}
+		jobs = append(jobs, j)
+	}
+	sort.SliceStable(jobs, func(a, b int) bool { return jobs[a].label < jobs[b].label })
+	return jobs
+}
+
+// bidsParts lists the files of a session that bids.Visit.Load analyses,
+// with their roles: one file is the single recording; of several, the first
+// eyes-closed and the first eyes-open run (by file name), as Load picks
+// them. A session of several files without such a pair is refused with the
+// reason: which one Load would take depends on its events, and the stored
+// files must be exactly the analysed ones so that reprocessing repeats it.
+func bidsParts(label string, v bids.Visit) ([]part, error) {
+	if len(v.Files) == 0 {
+		return nil, fmt.Errorf("intake: %s: no EEG file", label)
+	}
+	if len(v.Files) == 1 {
+		return []part{{file: &File{Path: v.Files[0].Path}, role: store.RoleSingle, format: string(v.Files[0].Format)}}, nil
+	}
+	var closed, open *bids.File
+	for i := range v.Files {
+		f := &v.Files[i]
+		switch {
+		case f.State == ingest.EyesClosed && closed == nil:
+			closed = f
+		case f.State == ingest.EyesOpen && open == nil:
+			open = f
+		}
+	}
+	if closed == nil || open == nil {
+		return nil, fmt.Errorf("intake: %s: %d EEG runs without an eyes-closed and an eyes-open one; "+
+			"longwave takes one resting run, or one eyes-closed and one eyes-open run", label, len(v.Files))
+	}
+	return []part{
+		{file: &File{Path: closed.Path}, role: store.RoleClosed, format: string(closed.Format)},
+		{file: &File{Path: open.Path}, role: store.RoleOpen, format: string(open.Format)},
+	}, nil
+}
+
+// setFormats fills the parts' formats from the dataset's files, or from
+// the file's header where the reader left it empty.
+func setFormats(parts []part, v bids.Visit) error {
+	for i := range parts {
+		for _, f := range v.Files {
+			if f.Path == parts[i].file.Path && f.Format != "" {
+				parts[i].format = string(f.Format)
+			}
+		}
+		if parts[i].format == "" {
+			if err := headerFormat(&parts[i]); err != nil {
+				return err
+			}
+		}
+	}
+	return nil
+}
+
+// headerFormat reads a part's format from its file's header.
+func headerFormat(pt *part) error {
+	r, size, err := pt.file.open()
+	if err != nil {
+		return err
+	}
+	defer r.Close()
+	ra, ok := r.(io.ReaderAt)
+	if !ok {
+		return fmt.Errorf("intake: %s: cannot read header", pt.file.name())
+	}
+	h, err := ingest.DecodeHeader(ra, size, pt.file.name())
+	if err != nil {
+		return err
+	}
+	pt.format = string(h.Format)
+	return nil
+}
+
+func normSub(s string) string {
+	if strings.HasPrefix(s, "sub-") {
+		return s
+	}
+	return "sub-" + s
+}
+
+func normSes(s string) string {
+	if strings.HasPrefix(s, "ses-") {
+		return s
+	}
+	return "ses-" + s
+}
+
+// acqDate reads the date of a BIDS acq_time ("YYYY-MM-DDThh:mm:ss[.frac][Z]").
+func acqDate(s string) (time.Time, bool) {
+	if len(s) < 10 {
+		return time.Time{}, false
+	}
+	d, err := time.Parse(time.DateOnly, s[:10])
+	return d, err == nil
+}

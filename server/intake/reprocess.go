@@ -1,0 +1,196 @@
+package intake
+
+import (
+	"context"
+	"fmt"
+	"math"
+	"slices"
+
+	"longwave/ingest"
+	"longwave/metrics"
+	"longwave/server/store"
+	"longwave/trends"
+)
+
+// MarkerChange is a marker whose value or computability moved when a visit
+// was processed again.
+type MarkerChange struct {
+	Key                          string // name/region/state
+	Old, New                     float64
+	OldComputable, NewComputable bool
+	OldReason, NewReason         string
+}
+
+// VisitChange is one reprocessed visit.
+type VisitChange struct {
+	VisitID     int64
+	PatientCode string
+	Date        string
+	OldVersion  string
+	OldHash     string
+	Changes     []MarkerChange
+	// Added and Removed list marker keys present in only one analysis.
+	Added, Removed []string
+}
+
+// ReprocessReport says what Reprocess did.
+type ReprocessReport struct {
+	Version, Hash string // the settings now in force
+	Visits        []VisitChange
+	Failed        []Failure // visit "visit N" and reason
+}
+
+// sameValue is the tolerance under which a marker counts as unchanged: a
+// rerun under identical settings reproduces values bit for bit, so anything
+// above float64 rounding of the stored value is a change.
+const sameValue = 1e-12
+
+// Reprocess runs again, from the stored recording files, every visit whose
+// analysis was made by other settings than p.Settings, and replaces its
+// conditions, markers, flags and display products, one transaction per
+// visit. A visit that fails (a missing file) is reported and keeps its old
+// analysis; the others go on. progress, when not nil, is called after each
+// visit.
+//
+// Only the recording files are kept, so what sidecars said at ingest (BIDS
+// events, line frequency, reference, bad channels, equipment) is restored
+// from the stored conditions and periods of the last analysis.
+func (p *Pipeline) Reprocess(ctx context.Context, progress func(done, total int)) (ReprocessReport, error) {
+	version, hash := p.Settings.Version, p.Settings.Hash()
+	rep := ReprocessReport{Version: version, Hash: hash}
+	ids, err := p.Store.VisitsWithOtherSettings(ctx, version, hash)
+	if err != nil {
+		return rep, err
+	}
+	for i, id := range ids {
+		if err := ctx.Err(); err != nil {
+			return rep, err
+		}
+		ch, err := p.reprocessVisit(ctx, id)
+		if err != nil {
+			rep.Failed = append(rep.Failed, Failure{Visit: fmt.Sprintf("visit %d", id), Err: err})
+		} else {
+			rep.Visits = append(rep.Visits, ch)
+		}
+		if progress != nil {
+			progress(i+1, len(ids))
+		}
+	}
+	return rep, nil
+}
+
+func (p *Pipeline) reprocessVisit(ctx context.Context, id int64) (VisitChange, error) {
+	old, err := p.Store.Visit(ctx, id)
+	if err != nil {
+		return VisitChange{}, err
+	}
+	src, err := p.Store.VisitSource(ctx, id)
+	if err != nil {
+		return VisitChange{}, err
+	}
+	label := fmt.Sprintf("%s %s (visit %d)", src.PatientCode, src.Visit.Date, id)
+	parts := make([]part, 0, len(src.Recordings))
+	for _, r := range src.Recordings {
+		path, err := p.Store.StoredRecordingPath(ctx, r.SHA256)
+		if err != nil {
+			return VisitChange{}, fmt.Errorf("intake: %s: %w", label, err)
+		}
+		parts = append(parts, part{file: &File{Path: path, Name: r.Role + " recording " + r.SHA256[:12]},
+			role: r.Role, sha: r.SHA256, size: r.Size, format: r.Format})
+	}
+	slices.SortFunc(parts, func(a, b part) int { return roleRank(a.role) - roleRank(b.role) })
+	rec, err := p.decodeParts(parts, src.DeclaredState)
+	if err != nil {
+		return VisitChange{}, fmt.Errorf("intake: %s: %w", label, err)
+	}
+	restoreSidecarFacts(rec, src)
+	periods := append([]ingest.Period(nil), rec.Periods...)
+	res, err := metrics.Compute(rec, p.Settings)
+	if err != nil {
+		return VisitChange{}, fmt.Errorf("intake: %s: %w", label, err)
+	}
+	flags := trends.CheckVisit(trends.VisitQuality{Conditions: res.Conditions, Quality: res.Quality, Markers: res.Markers})
+	if err := p.Store.ReplaceAnalysis(ctx, id, store.Analysis{Result: res, Flags: flags, Periods: periods}); err != nil {
+		return VisitChange{}, fmt.Errorf("intake: %s: %w", label, err)
+	}
+	ch := VisitChange{VisitID: id, PatientCode: src.PatientCode, Date: src.Visit.Date,
+		OldVersion: old.SettingsVersion, OldHash: old.SettingsHash}
+	ch.Changes, ch.Added, ch.Removed = diffMarkers(old.Markers, res.Markers)
+	return ch, nil
+}
+
+func roleRank(role string) int {
+	switch role {
+	case store.RoleClosed:
+		return 0
+	case store.RoleOpen:
+		return 1
+	}
+	return 2
+}
+
+// restoreSidecarFacts puts back into a recording decoded from its stored
+// file what came from outside the file at ingest: periods from BIDS events
+// or run names, hardware filters, a declared line frequency, reference and
+// equipment, channels marked bad.
+func restoreSidecarFacts(rec *ingest.Recording, src store.VisitSource) {
+	c := src.Conditions
+	// A single file whose periods came from BIDS events, or from its run's
+	// name or sidecar (FromRuns on one file), gets them back; two runs are
+	// joined again by Combine, and a declared state is passed to the decoder.
+	single := len(src.Recordings) == 1
+	if single && (c.PeriodSource == ingest.FromEvents || c.PeriodSource == ingest.FromRuns) && len(src.Periods) > 0 {
+		rec.Periods = append([]ingest.Period(nil), src.Periods...)
+		rec.Conditions.PeriodSource = c.PeriodSource
+	}
+	if len(c.BadChannels) > 0 {
+		for i := range rec.Channels {
+			if slices.Contains(c.BadChannels, rec.Channels[i].Label) {
+				rec.Channels[i].Bad = true
+			}
+		}
+		ingest.FinishConditions(rec)
+	}
+	if c.Filters.Text != rec.Conditions.Filters.Text || c.Filters.HighPass != rec.Conditions.Filters.HighPass ||
+		c.Filters.LowPass != rec.Conditions.Filters.LowPass || c.Filters.Notch != rec.Conditions.Filters.Notch {
+		rec.Conditions.Filters = c.Filters // a BIDS HardwareFilters sidecar
+	}
+	if c.LineFrequency > 0 {
+		rec.Conditions.LineFrequency = c.LineFrequency
+	}
+	if c.Reference != "" {
+		rec.Conditions.Reference = c.Reference
+	}
+	if c.Equipment != "" {
+		rec.Conditions.Equipment = c.Equipment
+	}
+}
+
+// diffMarkers lists the markers whose value or computability differ
+// between two analyses, and the keys found in only one.
+func diffMarkers(old, cur []metrics.Marker) (changes []MarkerChange, added, removed []string) {
+	before := make(map[string]metrics.Marker, len(old))
+	for _, m := range old {
+		before[m.Key()] = m
+	}
+	seen := map[string]bool{}
+	for _, m := range cur {
+		k := m.Key()
+		seen[k] = true
+		o, ok := before[k]
+		if !ok {
+			added = append(added, k)
+			continue
+		}
+		if o.Computable != m.Computable || math.Abs(o.Value-m.Value) > sameValue*math.Max(1, math.Abs(o.Value)) {
+			changes = append(changes, MarkerChange{Key: k, Old: o.Value, New: m.Value, OldComputable: o.Computable,
+				NewComputable: m.Computable, OldReason: o.Reason, NewReason: m.Reason})
+		}
+	}
+	for _, m := range old {
+		if !seen[m.Key()] {
+			removed = append(removed, m.Key())
+		}
+	}
+	return changes, added, removed
+}

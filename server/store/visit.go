@@ -1,0 +1,554 @@
+package store
+
+import (
+	"context"
+	"database/sql"
+	"encoding/json"
+	"errors"
+	"fmt"
+	"math"
+	"strings"
+
+	"longwave/ingest"
+	"longwave/metrics"
+)
+
+// Analysis is what processing made of a visit's recording: the metrics
+// result (conditions, quality, markers, display products, settings), the
+// flags of the quality and comparability rules, and the eye-state periods
+// that were analysed.
+type Analysis struct {
+	Result  *metrics.Result
+	Flags   []metrics.Flag
+	Periods []ingest.Period
+}
+
+// NewVisit is everything SaveVisit stores for one visit.
+type NewVisit struct {
+	// Patient is added or updated by Code (see UpsertPatient); ID is ignored.
+	Patient Patient
+	// Visit: ID and PatientID are ignored. When AgeKnown is false the age is
+	// computed from the patient's birth date or year (AgeAt).
+	Visit Visit
+	// DeclaredState is the eye state the user declared for a single file
+	// ("" none), kept for reprocessing.
+	DeclaredState ingest.EyeState
+	// Recordings of the visit, their files already in the data folder
+	// (PutRecording); ID and VisitID are ignored.
+	Recordings []Recording
+	Analysis   Analysis
+}
+
+// SaveVisit stores a whole visit in one transaction: the patient (added or
+// updated), the visit, its recording rows, conditions, markers, flags and
+// display products. Either all of it is stored or, on any error, none of it.
+// A patient has at most one visit per date: a second one on the same date
+// fails with ErrVisitExists. It returns the visit as stored.
+func (s *Store) SaveVisit(ctx context.Context, nv NewVisit) (Visit, error) {
+	if err := checkAnalysis(nv.Analysis); err != nil {
+		return Visit{}, err
+	}
+	if len(nv.Recordings) == 0 {
+		return Visit{}, fmt.Errorf("%w: visit %s %s has no recording", ErrInvalid, nv.Patient.Code, nv.Visit.Date)
+	}
+	for _, r := range nv.Recordings {
+		if !validSHA(r.SHA256) {
+			return Visit{}, fmt.Errorf("%w: recording hash %q", ErrInvalid, r.SHA256)
+		}
+	}
+	v := nv.Visit
+	err := s.inTx(ctx, func(tx *sql.Tx) error {
+		pid, err := s.upsertPatient(ctx, tx, nv.Patient)
+		if err != nil {
+			return err
+		}
+		v.PatientID = pid
+		if !v.AgeKnown {
+			p, err := scanPatient(tx.QueryRowContext(ctx, `SELECT `+patientColumns+` FROM patients WHERE id = ?`, pid))
+			if err != nil {
+				return err
+			}
+			if v.AgeYears, v.AgeKnown, err = AgeAt(p, v.Date); err != nil {
+				return fmt.Errorf("patient %s: %w", p.Code, err)
+			}
+		}
+		var existing int64
+		err = tx.QueryRowContext(ctx, `SELECT id FROM visits WHERE patient_id = ? AND visit_date = ?`, pid, v.Date).Scan(&existing)
+		if err == nil {
+			return fmt.Errorf("%w: patient %s already has a visit on %s (visit %d)", ErrVisitExists, nv.Patient.Code, v.Date, existing)
+		}
+		if !errors.Is(err, sql.ErrNoRows) {
+			return err
+		}
+		now := s.stamp()
+		err = tx.QueryRowContext(ctx, `
+			INSERT INTO visits (patient_id, visit_date, age_years, age_known, context, declared_state, created_at)
+			VALUES (?, ?, ?, ?, ?, ?, ?) RETURNING id`,
+			pid, v.Date, v.AgeYears, v.AgeKnown, v.Context, string(nv.DeclaredState), now).Scan(&v.ID)
+		if err != nil {
+			return fmt.Errorf("visit %s %s: %w", nv.Patient.Code, v.Date, err)
+		}
+		for _, r := range nv.Recordings {
+			if _, err := tx.ExecContext(ctx, `
+				INSERT INTO recordings (visit_id, sha256, format, size, role, created_at) VALUES (?, ?, ?, ?, ?, ?)`,
+				v.ID, r.SHA256, r.Format, r.Size, r.Role, now); err != nil {
+				return fmt.Errorf("recording %s (%s): %w", r.SHA256[:12], r.Role, err)
+			}
+		}
+		return s.writeAnalysis(ctx, tx, v.ID, nv.Analysis)
+	})
+	if err != nil {
+		if errors.Is(err, ErrInvalid) || errors.Is(err, ErrVisitExists) {
+			return Visit{}, err
+		}
+		return Visit{}, fmt.Errorf("store: save visit: %w", err)
+	}
+	return v, nil
+}
+
+// ReplaceAnalysis replaces the conditions, markers, flags and display
+// products of a visit with a new analysis, in one transaction (used when
+// reprocessing under new settings). The visit and its recordings stay.
+func (s *Store) ReplaceAnalysis(ctx context.Context, visitID int64, a Analysis) error {
+	if err := checkAnalysis(a); err != nil {
+		return err
+	}
+	err := s.inTx(ctx, func(tx *sql.Tx) error {
+		var one int
+		if err := tx.QueryRowContext(ctx, `SELECT 1 FROM visits WHERE id = ?`, visitID).Scan(&one); err != nil {
+			if errors.Is(err, sql.ErrNoRows) {
+				return fmt.Errorf("%w: visit %d", ErrNotFound, visitID)
+			}
+			return err
+		}
+		for _, table := range []string{"markers", "flags", "conditions", "display_products"} {
+			if _, err := tx.ExecContext(ctx, `DELETE FROM `+table+` WHERE visit_id = ?`, visitID); err != nil {
+				return fmt.Errorf("clear %s: %w", table, err)
+			}
+		}
+		return s.writeAnalysis(ctx, tx, visitID, a)
+	})
+	if err != nil && !errors.Is(err, ErrInvalid) && !errors.Is(err, ErrNotFound) {
+		return fmt.Errorf("store: replace analysis of visit %d: %w", visitID, err)
+	}
+	return err
+}
+
+// checkAnalysis refuses what the schema would refuse with a less helpful
+// message: a missing result, a marker value that is not finite.
+func checkAnalysis(a Analysis) error {
+	if a.Result == nil {
+		return fmt.Errorf("%w: analysis has no result", ErrInvalid)
+	}
+	if a.Result.SettingsVersion == "" || a.Result.SettingsHash == "" {
+		return fmt.Errorf("%w: analysis has no settings version or hash", ErrInvalid)
+	}
+	for _, m := range a.Result.Markers {
+		if math.IsNaN(m.Value) || math.IsInf(m.Value, 0) {
+			return fmt.Errorf("%w: marker %s: value %v is not a finite number", ErrInvalid, m.Key(), m.Value)
+		}
+		if !m.Computable && m.Reason == "" {
+			return fmt.Errorf("%w: marker %s: not computable without a reason", ErrInvalid, m.Key())
+		}
+	}
+	for _, f := range a.Flags {
+		if f.Severity != metrics.Caution && f.Severity != metrics.NotComparable {
+			return fmt.Errorf("%w: flag %s: severity %q", ErrInvalid, f.Rule, f.Severity)
+		}
+	}
+	return nil
+}
+
+func (s *Store) writeAnalysis(ctx context.Context, tx *sql.Tx, visitID int64, a Analysis) error {
+	res := a.Result
+	c, q := res.Conditions, res.Quality
+	condJSON, err := json.Marshal(c)
+	if err != nil {
+		return fmt.Errorf("conditions: %w", err)
+	}
+	qualJSON, err := json.Marshal(q)
+	if err != nil {
+		return fmt.Errorf("quality: %w", err)
+	}
+	periods := a.Periods
+	if periods == nil {
+		periods = []ingest.Period{}
+	}
+	perJSON, err := json.Marshal(periods)
+	if err != nil {
+		return fmt.Errorf("periods: %w", err)
+	}
+	lineHz, lineSrc := q.LineFrequency, q.LineFrequencySource
+	if lineHz == 0 && c.LineFrequency > 0 {
+		lineHz, lineSrc = c.LineFrequency, "sidecar"
+	}
+	_, err = tx.ExecContext(ctx, `
+		INSERT INTO conditions (visit_id, format, sample_rate, uv_per_step, bits,
+			high_pass_hz, high_pass_known, low_pass_hz, low_pass_known, notch_hz, notch_known,
+			line_frequency, line_frequency_source, reference, equipment, duration_s, start_time_of_day,
+			period_source, clean_closed_s, clean_open_s, rejected_share, settings_version, settings_hash,
+			conditions_json, quality_json, periods_json, analysed_at)
+		VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?)`,
+		visitID, string(c.Format), c.SampleRate, c.UVPerStep, c.Bits,
+		c.Filters.HighPass.Hz, c.Filters.HighPass.Known, c.Filters.LowPass.Hz, c.Filters.LowPass.Known,
+		c.Filters.Notch.Hz, c.Filters.Notch.Known,
+		lineHz, lineSrc, c.Reference, c.Equipment, c.Duration, c.StartTimeOfDay,
+		string(c.PeriodSource), q.CleanSeconds[ingest.EyesClosed], q.CleanSeconds[ingest.EyesOpen], q.RejectedShare,
+		res.SettingsVersion, res.SettingsHash, string(condJSON), string(qualJSON), string(perJSON), s.stamp())
+	if err != nil {
+		return fmt.Errorf("conditions: %w", err)
+	}
+	mst, err := tx.PrepareContext(ctx, `
+		INSERT INTO markers (visit_id, name, region, state, value, unit, computable, reason, settings_version, settings_hash)
+		VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?, ?)`)
+	if err != nil {
+		return fmt.Errorf("markers: %w", err)
+	}
+	defer mst.Close()
+	for _, m := range res.Markers {
+		if _, err := mst.ExecContext(ctx, visitID, m.Name, m.Region, string(m.State), m.Value, m.Unit,
+			m.Computable, m.Reason, res.SettingsVersion, res.SettingsHash); err != nil {
+			return fmt.Errorf("marker %s: %w", m.Key(), err)
+		}
+	}
+	for _, f := range a.Flags {
+		names := f.Markers
+		if names == nil {
+			names = []string{}
+		}
+		mj, err := json.Marshal(names)
+		if err != nil {
+			return fmt.Errorf("flag %s: %w", f.Rule, err)
+		}
+		if _, err := tx.ExecContext(ctx, `
+			INSERT INTO flags (visit_id, rule, severity, markers_json, reason, source) VALUES (?, ?, ?, ?, ?, ?)`,
+			visitID, f.Rule, string(f.Severity), string(mj), f.Reason, f.Source); err != nil {
+			return fmt.Errorf("flag %s: %w", f.Rule, err)
+		}
+	}
+	dj, err := json.Marshal(res.Display)
+	if err != nil {
+		return fmt.Errorf("display: %w", err)
+	}
+	if _, err := tx.ExecContext(ctx, `INSERT INTO display_products (visit_id, display_json) VALUES (?, ?)`,
+		visitID, string(dj)); err != nil {
+		return fmt.Errorf("display: %w", err)
+	}
+	return nil
+}
+
+// RecordingKnown reports whether a recording with that SHA-256 is stored,
+// and returns its row (the first, should two visits share a file).
+func (s *Store) RecordingKnown(ctx context.Context, sha string) (Recording, bool, error) {
+	var r Recording
+	err := s.r.QueryRowContext(ctx, `SELECT id, visit_id, sha256, format, size, role FROM recordings
+		WHERE sha256 = ? ORDER BY id LIMIT 1`, sha).Scan(&r.ID, &r.VisitID, &r.SHA256, &r.Format, &r.Size, &r.Role)
+	if errors.Is(err, sql.ErrNoRows) {
+		return Recording{}, false, nil
+	}
+	if err != nil {
+		return Recording{}, false, fmt.Errorf("store: recording %s: %w", sha, err)
+	}
+	return r, true, nil
+}
+
+// Visit returns the visit with everything analysis made of it, or
+// ErrNotFound.
+func (s *Store) Visit(ctx context.Context, id int64) (VisitRecord, error) {
+	vs, err := s.loadVisits(ctx, "v.id = ?", nil, id)
+	if err != nil {
+		return VisitRecord{}, err
+	}
+	if len(vs) == 0 {
+		return VisitRecord{}, fmt.Errorf("%w: visit %d", ErrNotFound, id)
+	}
+	return vs[0], nil
+}
+
+// PatientVisits returns the patient's visits ordered by date (an empty list
+// for a patient without visits or an unknown ID).
+func (s *Store) PatientVisits(ctx context.Context, patientID int64) ([]VisitRecord, error) {
+	return s.loadVisits(ctx, "v.patient_id = ?", nil, patientID)
+}
+
+// VisitDisplay returns the display products of a visit, or ErrNotFound.
+func (s *Store) VisitDisplay(ctx context.Context, id int64) (metrics.Display, error) {
+	var js string
+	err := s.r.QueryRowContext(ctx, `SELECT display_json FROM display_products WHERE visit_id = ?`, id).Scan(&js)
+	if errors.Is(err, sql.ErrNoRows) {
+		return metrics.Display{}, fmt.Errorf("%w: display of visit %d", ErrNotFound, id)
+	}
+	if err != nil {
+		return metrics.Display{}, fmt.Errorf("store: display of visit %d: %w", id, err)
+	}
+	var d metrics.Display
+	if err := json.Unmarshal([]byte(js), &d); err != nil {
+		return metrics.Display{}, fmt.Errorf("store: display of visit %d: %w", id, err)
+	}
+	return d, nil
+}
+
+// PatientCourse pairs a patient with its visits ordered by date.
+type PatientCourse struct {
+	Patient Patient
+	Visits  []VisitRecord
+}
+
+// AllVisitRecords returns every patient (ordered by code) with its visits
+// (ordered by date), for the cohort page and the export. It runs five
+// queries whatever the number of patients. With marker names given, only
+// markers of those names are loaded (the cohort page needs a few of the
+// ~40 per visit).
+func (s *Store) AllVisitRecords(ctx context.Context, markerNames ...string) ([]PatientCourse, error) {
+	rows, err := s.r.QueryContext(ctx, `SELECT `+patientColumns+` FROM patients ORDER BY code`)
+	if err != nil {
+		return nil, fmt.Errorf("store: patients: %w", err)
+	}
+	var out []PatientCourse
+	index := map[int64]int{}
+	for rows.Next() {
+		p, err := scanPatient(rows)
+		if err != nil {
+			rows.Close()
+			return nil, fmt.Errorf("store: patients: %w", err)
+		}
+		index[p.ID] = len(out)
+		out = append(out, PatientCourse{Patient: p})
+	}
+	rows.Close()
+	if err := rows.Err(); err != nil {
+		return nil, fmt.Errorf("store: patients: %w", err)
+	}
+	vs, err := s.loadVisits(ctx, "1", markerNames)
+	if err != nil {
+		return nil, err
+	}
+	for _, v := range vs {
+		if i, ok := index[v.Visit.PatientID]; ok {
+			out[i].Visits = append(out[i].Visits, v)
+		}
+	}
+	return out, nil
+}
+
+// VisitsWithOtherSettings returns the IDs (ascending) of the visits whose
+// analysis, or any of whose markers, was made by settings other than
+// version and hash.
+func (s *Store) VisitsWithOtherSettings(ctx context.Context, version, hash string) ([]int64, error) {
+	rows, err := s.r.QueryContext(ctx, `
+		SELECT visit_id FROM conditions WHERE settings_version <> ?1 OR settings_hash <> ?2
+		UNION
+		SELECT visit_id FROM markers WHERE settings_version <> ?1 OR settings_hash <> ?2
+		UNION
+		SELECT v.id FROM visits v WHERE NOT EXISTS (SELECT 1 FROM conditions c WHERE c.visit_id = v.id)
+		ORDER BY 1`, version, hash)
+	if err != nil {
+		return nil, fmt.Errorf("store: visits with other settings: %w", err)
+	}
+	defer rows.Close()
+	var ids []int64
+	for rows.Next() {
+		var id int64
+		if err := rows.Scan(&id); err != nil {
+			return nil, fmt.Errorf("store: visits with other settings: %w", err)
+		}
+		ids = append(ids, id)
+	}
+	if err := rows.Err(); err != nil {
+		return nil, fmt.Errorf("store: visits with other settings: %w", err)
+	}
+	return ids, nil
+}
+
+// VisitSource is what reprocessing needs to decode a visit again: the
+// patient code, the visit, its recordings, the declared eye state and the
+// periods and conditions of the last analysis (which hold what sidecars
+// said, since only the recording files are kept).
+type VisitSource struct {
+	PatientCode   string
+	Visit         Visit
+	DeclaredState ingest.EyeState
+	Recordings    []Recording
+	Periods       []ingest.Period
+	Conditions    ingest.Conditions
+}
+
+// VisitSource returns the visit's source for reprocessing, or ErrNotFound.
+func (s *Store) VisitSource(ctx context.Context, id int64) (VisitSource, error) {
+	var src VisitSource
+	var state, perJSON, condJSON string
+	v := &src.Visit
+	err := s.r.QueryRowContext(ctx, `
+		SELECT p.code, v.id, v.patient_id, v.visit_date, v.age_years, v.age_known, v.context, v.declared_state,
+		       coalesce(c.periods_json, '[]'), coalesce(c.conditions_json, '{}')
+		FROM visits v JOIN patients p ON p.id = v.patient_id LEFT JOIN conditions c ON c.visit_id = v.id
+		WHERE v.id = ?`, id).Scan(&src.PatientCode, &v.ID, &v.PatientID, &v.Date, &v.AgeYears, &v.AgeKnown,
+		&v.Context, &state, &perJSON, &condJSON)
+	if errors.Is(err, sql.ErrNoRows) {
+		return VisitSource{}, fmt.Errorf("%w: visit %d", ErrNotFound, id)
+	}
+	if err != nil {
+		return VisitSource{}, fmt.Errorf("store: visit %d: %w", id, err)
+	}
+	src.DeclaredState = ingest.EyeState(state)
+	if err := json.Unmarshal([]byte(perJSON), &src.Periods); err != nil {
+		return VisitSource{}, fmt.Errorf("store: visit %d: periods: %w", id, err)
+	}
+	if err := json.Unmarshal([]byte(condJSON), &src.Conditions); err != nil {
+		return VisitSource{}, fmt.Errorf("store: visit %d: conditions: %w", id, err)
+	}
+	rows, err := s.r.QueryContext(ctx, `SELECT id, visit_id, sha256, format, size, role FROM recordings
+		WHERE visit_id = ? ORDER BY id`, id)
+	if err != nil {
+		return VisitSource{}, fmt.Errorf("store: visit %d: recordings: %w", id, err)
+	}
+	defer rows.Close()
+	for rows.Next() {
+		var r Recording
+		if err := rows.Scan(&r.ID, &r.VisitID, &r.SHA256, &r.Format, &r.Size, &r.Role); err != nil {
+			return VisitSource{}, fmt.Errorf("store: visit %d: recordings: %w", id, err)
+		}
+		src.Recordings = append(src.Recordings, r)
+	}
+	return src, rows.Err()
+}
+
+// loadVisits reads the visits matching where (a condition on visits v) with
+// their recordings, conditions, markers and flags: four queries in all,
+// assembled by visit ID. Visits are ordered by patient then date.
+func (s *Store) loadVisits(ctx context.Context, where string, markerNames []string, args ...any) ([]VisitRecord, error) {
+	// One read transaction: the four queries see one snapshot (WAL), so a
+	// reprocess committing between them cannot mix two analyses.
+	tx, err := s.r.BeginTx(ctx, nil)
+	if err != nil {
+		return nil, fmt.Errorf("store: visits: %w", err)
+	}
+	defer tx.Rollback()
+	rows, err := tx.QueryContext(ctx, `
+		SELECT v.id, v.patient_id, v.visit_date, v.age_years, v.age_known, v.context,
+		       coalesce(c.settings_version, ''), coalesce(c.settings_hash, ''),
+		       coalesce(c.conditions_json, '{}'), coalesce(c.quality_json, '{}')
+		FROM visits v LEFT JOIN conditions c ON c.visit_id = v.id
+		WHERE `+where+` ORDER BY v.patient_id, v.visit_date`, args...)
+	if err != nil {
+		return nil, fmt.Errorf("store: visits: %w", err)
+	}
+	var out []VisitRecord
+	index := map[int64]int{}
+	for rows.Next() {
+		var vr VisitRecord
+		v := &vr.Visit
+		var cj, qj string
+		if err := rows.Scan(&v.ID, &v.PatientID, &v.Date, &v.AgeYears, &v.AgeKnown, &v.Context,
+			&vr.SettingsVersion, &vr.SettingsHash, &cj, &qj); err != nil {
+			rows.Close()
+			return nil, fmt.Errorf("store: visits: %w", err)
+		}
+		if err := json.Unmarshal([]byte(cj), &vr.Conditions); err != nil {
+			rows.Close()
+			return nil, fmt.Errorf("store: visit %d: conditions: %w", v.ID, err)
+		}
+		if err := json.Unmarshal([]byte(qj), &vr.Quality); err != nil {
+			rows.Close()
+			return nil, fmt.Errorf("store: visit %d: quality: %w", v.ID, err)
+		}
+		index[v.ID] = len(out)
+		out = append(out, vr)
+	}
+	rows.Close()
+	if err := rows.Err(); err != nil {
+		return nil, fmt.Errorf("store: visits: %w", err)
+	}
+	if len(out) == 0 {
+		return nil, nil
+	}
+	// The rows of the matching visits; for all visits no join is needed
+	// (it would cost a visits lookup per marker row).
+	join, and := ` JOIN visits v ON v.id = x.visit_id WHERE `+where, ` AND `
+	if where == "1" {
+		join, and = "", ` WHERE `
+	}
+
+	err = each(ctx, tx, `SELECT x.id, x.visit_id, x.sha256, x.format, x.size, x.role FROM recordings x`+join+
+		` ORDER BY x.visit_id, x.id`, args, func(sc func(...any) error) error {
+		var r Recording
+		if err := sc(&r.ID, &r.VisitID, &r.SHA256, &r.Format, &r.Size, &r.Role); err != nil {
+			return err
+		}
+		if i, ok := index[r.VisitID]; ok {
+			out[i].Recordings = append(out[i].Recordings, r)
+		}
+		return nil
+	})
+	if err != nil {
+		return nil, fmt.Errorf("store: recordings: %w", err)
+	}
+
+	mq := `SELECT x.visit_id, x.name, x.region, x.state, x.value, x.unit, x.computable, x.reason FROM markers x` + join
+	margs := args
+	if len(markerNames) > 0 {
+		mq += and + `x.name IN (?` + strings.Repeat(`, ?`, len(markerNames)-1) + `)`
+		margs = append(append([]any{}, args...), anySlice(markerNames)...)
+	}
+	err = each(ctx, tx, mq+` ORDER BY x.visit_id, x.id`, margs, func(sc func(...any) error) error {
+		var id int64
+		var m metrics.Marker
+		var state string
+		if err := sc(&id, &m.Name, &m.Region, &state, &m.Value, &m.Unit, &m.Computable, &m.Reason); err != nil {
+			return err
+		}
+		m.State = ingest.EyeState(state)
+		if i, ok := index[id]; ok {
+			out[i].Markers = append(out[i].Markers, m)
+		}
+		return nil
+	})
+	if err != nil {
+		return nil, fmt.Errorf("store: markers: %w", err)
+	}
+
+	err = each(ctx, tx, `SELECT x.visit_id, x.rule, x.severity, x.markers_json, x.reason, x.source FROM flags x`+join+
+		` ORDER BY x.visit_id, x.id`, args, func(sc func(...any) error) error {
+		var id int64
+		var f metrics.Flag
+		var sev, mj string
+		if err := sc(&id, &f.Rule, &sev, &mj, &f.Reason, &f.Source); err != nil {
+			return err
+		}
+		f.Severity = metrics.Severity(sev)
+		if err := json.Unmarshal([]byte(mj), &f.Markers); err != nil {
+			return err
+		}
+		if i, ok := index[id]; ok {
+			out[i].Flags = append(out[i].Flags, f)
+		}
+		return nil
+	})
+	if err != nil {
+		return nil, fmt.Errorf("store: flags: %w", err)
+	}
+	return out, nil
+}
+
+func anySlice(ss []string) []any {
+	out := make([]any, len(ss))
+	for i, s := range ss {
+		out[i] = s
+	}
+	return out
+}
+
+// each runs a query and calls f with a scanner per row.
+func each(ctx context.Context, tx *sql.Tx, query string, args []any, f func(scan func(...any) error) error) error {
+	rows, err := tx.QueryContext(ctx, query, args...)
+	if err != nil {
+		return err
+	}
+	defer rows.Close()
+	for rows.Next() {
+		if err := f(rows.Scan); err != nil {
+			return err
+		}
+	}
+	return rows.Err()
+}

@@ -1,0 +1,295 @@
+package web
+
+import "html/template"
+
+// One struct per screen. Every value a template prints is already a string
+// formatted for people (dates ISO 8601, numbers with their unit), so the
+// templates hold no logic beyond loops and conditions, and html/template
+// escapes everything that came from a recording or a user.
+
+// Frame is what every page shares: the title, the signed-in user, the CSRF
+// token for its forms and the links of the top bar.
+type Frame struct {
+	Title string
+	User  string
+	Role  string
+	CSRF  string
+	Nav   []NavLink
+}
+
+func (f *Frame) frame() *Frame { return f }
+
+// NavLink is one link of the top bar.
+type NavLink struct {
+	Label   string
+	URL     string
+	Current bool
+}
+
+// Cell is a number with its unit for a right-aligned table cell; Text is
+// "–" with Note saying why when there is no number.
+type Cell struct {
+	Text string
+	Unit string
+	Note string
+}
+
+// Pair is a labelled value of a definition list (conditions, settings).
+type Pair struct {
+	Label string
+	Value string
+}
+
+// FlagView is a visit flag as shown: severity in words, reason, source and
+// the markers affected ("all markers" when the flag names none).
+type FlagView struct {
+	Severity    string // "not comparable" or "caution"
+	SeverityKey string // "not_comparable" or "caution", for the CSS class
+	Reason      string
+	Source      string
+	Markers     string
+}
+
+// ChartBox is a chart's place on a page: the key of its option in the
+// page's ChartData, a title, and text under it.
+type ChartBox struct {
+	Key     string
+	Title   string
+	Caption string
+	Tall    bool
+}
+
+// SignInPage is the sign-in form.
+type SignInPage struct {
+	Frame
+	Name  string
+	Next  string
+	Error string
+	// FormToken is the pre-session CSRF token (also in a cookie).
+	FormToken string
+}
+
+func (*SignInPage) template() string { return "signin.html" }
+
+// PatientsPage lists every patient for a clinician to open.
+type PatientsPage struct {
+	Frame
+	Rows   []PatientRow
+	AddURL string // "" when the user may not add recordings
+}
+
+func (*PatientsPage) template() string { return "patients.html" }
+
+// PatientRow is one patient of the list.
+type PatientRow struct {
+	Code      string
+	URL       string
+	Sex       string
+	BirthYear string
+	Cohort    string
+	Visits    Cell
+	LastVisit string
+}
+
+// CohortPage is the follow-up table framed for one user; Body is a
+// CohortBody rendered once by RenderCohortBody (it is the same for every
+// user and is cached).
+type CohortPage struct {
+	Frame
+	Body template.HTML
+}
+
+func (*CohortPage) template() string { return "cohort.html" }
+
+// CohortBody is the follow-up table of a cohort, one row per patient.
+type CohortBody struct {
+	Overdue, Flagged, Reliable bool
+	Sort                       string
+	SortOptions                []Pair // Label: shown, Value: key
+	Markers                    []string
+	Rows                       []CohortRow
+	Total                      int
+	PageText                   string
+	PrevURL, NextURL           string
+	CSVURL                     string
+}
+
+// CohortRow is one patient's follow-up.
+type CohortRow struct {
+	Code        string
+	URL         string
+	Visits      Cell
+	Comparable  Cell
+	LastVisit   string
+	NextDue     string
+	OverdueDays Cell
+	Overdue     bool
+	Flags       []string
+	Directions  []Direction
+}
+
+// Direction is a marker's change over the patient's comparable visits in
+// words ("lower", "higher", "no clear change", "–").
+type Direction struct {
+	Marker   string
+	Text     string
+	Key      string // CSS class suffix: "down", "up", "steady", "none"
+	Reliable bool
+}
+
+// CoursePage is a patient's course framed for one user; Body is a
+// CourseBody rendered once by RenderCourseBody (cached).
+type CoursePage struct {
+	Frame
+	Body template.HTML
+}
+
+func (*CoursePage) template() string { return "course.html" }
+
+// CourseBody is one patient's course: a chart per marker and the visits.
+type CourseBody struct {
+	Code      string
+	Facts     []Pair
+	AddURL    string
+	Charts    []CourseChart
+	Visits    []VisitRow
+	ChartData map[string]Option
+	Advisory  string
+}
+
+// CourseChart is one marker's chart with its change figures and the
+// reference band's source.
+type CourseChart struct {
+	ChartBox
+	Figures []Pair
+	// Reference is the citation of the band drawn, or the reason none is.
+	Reference string
+	HasBand   bool
+	Status    string
+}
+
+// VisitRow is one visit in the course's table.
+type VisitRow struct {
+	Date       string
+	Age        string
+	URL        string
+	Comparable bool
+	Verdict    string
+	Conditions []Pair
+	Flags      []FlagView
+}
+
+// VisitPage is one visit: spectra, traces, conditions, flags.
+type VisitPage struct {
+	Frame
+	Code       string
+	CourseURL  string
+	Date       string
+	Age        string
+	Verdict    string
+	Comparable bool
+	Settings   []Pair
+	Conditions []Pair
+	Flags      []FlagView
+	Markers    []MarkerRow
+	Spectra    []ChartBox
+	Traces     []ChartBox
+	NoDisplay  string
+	ChartData  map[string]Option
+}
+
+func (*VisitPage) template() string { return "visit.html" }
+
+// MarkerRow is one marker of a visit.
+type MarkerRow struct {
+	Name   string
+	Region string
+	State  string
+	Value  Cell
+}
+
+// UploadPage is the form to add a recording to a patient's visit, and its
+// result after a plain (script-less) post.
+type UploadPage struct {
+	Frame
+	Code       string
+	Date       string
+	Limit      string
+	LimitBytes int64
+	Patients   []string
+	States     []Pair
+	State      string
+	BirthYear  string
+	Sex        string
+	Sexes      []Pair
+	Result     *UploadResult
+	Error      string
+}
+
+func (*UploadPage) template() string { return "upload.html" }
+
+// UploadResult says what became of an upload.
+type UploadResult struct {
+	Message   string
+	VisitURL  string
+	CourseURL string
+	Flags     []FlagView
+}
+
+// SourcesPage lists every reference range with its citation and status.
+type SourcesPage struct {
+	Frame
+	Advisory string
+	Rows     []SourceRow
+}
+
+func (*SourcesPage) template() string { return "sources.html" }
+
+// SourceRow is one reference range.
+type SourceRow struct {
+	Set      string
+	Marker   string
+	Region   string
+	State    string
+	Ages     string
+	Range    string
+	Change   string
+	Citation string
+	Status   string
+	Method   string
+	Note     string
+}
+
+// UsersPage is the admin's list of users with a form to add one.
+type UsersPage struct {
+	Frame
+	Users  []UserRow
+	Roles  []string
+	Error  string
+	Notice string
+	Audit  []AuditRow
+}
+
+func (*UsersPage) template() string { return "users.html" }
+
+// UserRow is one user.
+type UserRow struct {
+	Name     string
+	Role     string
+	Created  string
+	Disabled bool
+}
+
+// AuditRow is one audit entry.
+type AuditRow struct {
+	At, User, Action, Subject, Client string
+}
+
+// ErrorPage tells a person what went wrong in words meant for them.
+type ErrorPage struct {
+	Frame
+	Status  int
+	Message string
+}
+
+func (*ErrorPage) template() string { return "error.html" }

@@ -1,0 +1,21 @@
+#!/usr/bin/env bash
+# Re-makes every golden file from the reference libraries (Debian's
+# /usr/bin/python3 with python3-numpy, python3-scipy, python3-mne). .ci/run
+# calls it and then fails if `git diff testdata` shows any change, so the
+# committed golden files cannot drift from the libraries they quote.
+set -euo pipefail
+cd "$(dirname "$0")/.."
+py=/usr/bin/python3
+
+echo "-- MNE's EDF/BDF reader on ../shared/data and our synthetic files"
+"$py" testdata/ingest/mne/make_golden.py
+
+echo "-- scipy filters, Welch, Savitzky-Golay, curve_fit"
+"$py" testdata/metrics/make_golden.py
+
+echo "-- epoch masks from the Go pipeline, then the MNE + scipy reference markers"
+go test ./metrics/ -count=1 -run '^TestReferenceAgreement$' -update-reference >/dev/null
+"$py" testdata/metrics/reference/reference_markers.py
+
+echo "-- numpy/scipy regression and t quantiles"
+"$py" testdata/trends/make_golden.py

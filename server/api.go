@@ -137,17 +137,7 @@ type apiCohortBody struct {
 }
 
 func (s *Server) apiCohort(w http.ResponseWriter, r *http.Request) {
-	cq, err := parseCohortQuery(r.URL.Query())
-	if err != nil {
-		s.fail(w, r, err)
-		return
-	}
-	c, err := s.buildCohort(r)
-	if err != nil {
-		s.fail(w, r, err)
-		return
-	}
-	rows, err := cohortRows(c, cq)
+	c, cq, rows, err := s.queriedCohort(r)
 	if err != nil {
 		s.fail(w, r, err)
 		return

@@ -133,6 +133,21 @@ func (cq cohortQuery) values(page int) url.Values {
 }
 
 // cohortRows filters and sorts a copy of the cohort's rows.
+// queriedCohort builds the cohort and the rows the request's filters and
+// sort select (every row, no paging): the JSON API and the CSV export.
+func (s *Server) queriedCohort(r *http.Request) (*trends.Cohort, cohortQuery, []trends.CohortRow, error) {
+	cq, err := parseCohortQuery(r.URL.Query())
+	if err != nil {
+		return nil, cq, nil, err
+	}
+	c, err := s.buildCohort(r)
+	if err != nil {
+		return nil, cq, nil, err
+	}
+	rows, err := cohortRows(c, cq)
+	return c, cq, rows, err
+}
+
 func cohortRows(c *trends.Cohort, cq cohortQuery) ([]trends.CohortRow, error) {
 	rows := trends.FilterRows(c.Rows, cq.filter)
 	if err := trends.SortRows(rows, cq.sort, cq.desc); err != nil {

@@ -13,17 +13,7 @@ import (
 // query says (the same filters as the cohort page, every row, no paging),
 // as a CSV download. Each export is audited.
 func (s *Server) exportCSV(w http.ResponseWriter, r *http.Request) {
-	cq, err := parseCohortQuery(r.URL.Query())
-	if err != nil {
-		s.fail(w, r, err)
-		return
-	}
-	c, err := s.buildCohort(r)
-	if err != nil {
-		s.fail(w, r, err)
-		return
-	}
-	rows, err := cohortRows(c, cq)
+	_, cq, rows, err := s.queriedCohort(r)
 	if err != nil {
 		s.fail(w, r, err)
 		return

@@ -467,5 +467,10 @@ func (a *analysis) quality() Quality {
 	if len(a.eps) > 0 {
 		q.RejectedShare = float64(rejected) / float64(len(a.eps))
 	}
+	q.Windows = make([]Window, 0, len(a.eps))
+	for _, e := range a.eps {
+		q.Windows = append(q.Windows, Window{Start: e.Start, End: e.Start + float64(a.length)/a.fs,
+			State: e.State, Kept: e.Reject == "", Reason: e.Reject})
+	}
 	return q
 }

@@ -44,6 +44,37 @@ type Marker struct {
 	Unit       string          `json:"unit"`
 	Computable bool            `json:"computable"`
 	Reason     string          `json:"reason,omitempty"`
+	// Uncertainty is the marker's own interval from the visit's data (settings
+	// v2 onward); nil for a marker that is not computable or for settings
+	// that make none (v1).
+	Uncertainty *Uncertainty `json:"uncertainty,omitempty"`
+}
+
+// Uncertainty is a marker's interval from the visit's own data: the
+// standard error SE and the interval [Low, High] at Level (0.95), how they
+// were made (Method, in words with the method's source) and, for a
+// bootstrap, the number of resamples (0 for an analytic formula).
+type Uncertainty struct {
+	SE        float64 `json:"se"`
+	Low       float64 `json:"low"`
+	High      float64 `json:"high"`
+	Level     float64 `json:"level"`
+	Method    string  `json:"method"`
+	Resamples int     `json:"resamples"`
+}
+
+// Window is one analysis window of a recording and what the artefact rules
+// decided about it, for the screens that show which seconds were used:
+// recording time [Start, End) in seconds, the eye state, the region the
+// decision applies to ("" for every region), whether it was kept, and the
+// rule that rejected it (a rule key; "" when kept).
+type Window struct {
+	Start  float64         `json:"start"`
+	End    float64         `json:"end"`
+	State  ingest.EyeState `json:"state"`
+	Region string          `json:"region,omitempty"`
+	Kept   bool            `json:"kept"`
+	Reason string          `json:"reason,omitempty"`
 }
 
 // Key identifies a marker series across visits: name, region and state.
@@ -90,6 +121,9 @@ type Quality struct {
 	// alpha dropout; DrowsinessKnown is false when there were none.
 	Drowsiness      float64 `json:"drowsiness_index"`
 	DrowsinessKnown bool    `json:"drowsiness_known"`
+	// Windows are the analysis windows in time order with the decision on
+	// each (kept, or the rule that rejected it).
+	Windows []Window `json:"windows,omitempty"`
 }
 
 // Spectrum is a display spectrum of one state over 1–45 Hz at the Welch

@@ -9,6 +9,7 @@ import (
 	"reflect"
 	"sort"
 	"strconv"
+	"strings"
 
 	"longwave/ingest"
 )
@@ -236,6 +237,15 @@ type Settings struct {
 	Aperiodic       AperiodicSettings   `json:"aperiodic"`
 	Drowsiness      DrowsinessSettings  `json:"drowsiness"`
 	Display         DisplaySettings     `json:"display"`
+
+	// Settings added in version 2. They are pointers so that a version
+	// without them (V1) keeps its canonical JSON and hash: a nil pointer
+	// field is left out of CanonicalJSON.
+
+	// Ocular is the correction of eye artefacts before referencing (nil: none).
+	Ocular *OcularSettings `json:"ocular,omitempty"`
+	// Uncertainty is how every marker's interval is made (nil: none).
+	Uncertainty *UncertaintySettings `json:"uncertainty,omitempty"`
 }
 
 // V1 returns processing settings version 1. Sources: DESIGN.md for the
@@ -318,6 +328,31 @@ func V1() Settings {
 	}
 }
 
+// V2 returns processing settings version 2: V1 with ocular correction,
+// artefact decisions per region and window, and an interval on every marker
+// (DESIGN.md, "Uncertainty and norms").
+func V2() Settings {
+	s := V1()
+	s.Version = "2"
+	s.Ocular = defaultOcular()
+	s.Uncertainty = defaultUncertainty()
+	return s
+}
+
+// Current returns the settings new visits are processed with.
+func Current() Settings { return V1() }
+
+// ByVersion returns the settings of a known version, and whether it is known.
+func ByVersion(version string) (Settings, bool) {
+	switch version {
+	case "1":
+		return V1(), true
+	case "2":
+		return V2(), true
+	}
+	return Settings{}, false
+}
+
 // CanonicalJSON encodes s with object keys sorted, no white space, and
 // every float in the shortest form that reads back to the same float64
 // (strconv 'g', precision −1; integral values keep no fraction). Two equal
@@ -348,11 +383,18 @@ func writeCanonical(b *bytes.Buffer, v reflect.Value) {
 			if !f.IsExported() {
 				continue
 			}
-			name := f.Tag.Get("json")
+			name, _, _ := strings.Cut(f.Tag.Get("json"), ",")
 			if name == "" || name == "-" {
 				name = f.Name
 			}
-			fields = append(fields, kv{name, v.Field(i)})
+			fv := v.Field(i)
+			if fv.Kind() == reflect.Pointer {
+				if fv.IsNil() {
+					continue // a setting a version does not have
+				}
+				fv = fv.Elem()
+			}
+			fields = append(fields, kv{name, fv})
 		}
 		sort.Slice(fields, func(i, j int) bool { return fields[i].key < fields[j].key })
 		b.WriteByte('{')

@@ -28,11 +28,16 @@ type step struct {
 	field int    // struct field index, or −1
 	index int    // slice element, or −1
 	key   string // map key, when field and index are −1
+	deref bool   // through a pointer (settings of later versions)
 }
 
 // leaves lists the paths to every scalar inside v.
 func leaves(v reflect.Value, path []step, out *[][]step) {
 	switch v.Kind() {
+	case reflect.Pointer:
+		if !v.IsNil() {
+			leaves(v.Elem(), append(append([]step{}, path...), step{field: -1, index: -1, deref: true}), out)
+		}
 	case reflect.Struct:
 		for i := 0; i < v.NumField(); i++ {
 			leaves(v.Field(i), append(append([]step{}, path...), step{field: i, index: -1}), out)
@@ -56,6 +61,8 @@ func leaves(v reflect.Value, path []step, out *[][]step) {
 func follow(v reflect.Value, path []step) reflect.Value {
 	for _, s := range path {
 		switch {
+		case s.deref:
+			v = v.Elem()
 		case s.field >= 0:
 			v = v.Field(s.field)
 		case s.index >= 0:
@@ -71,6 +78,8 @@ func pathName(t reflect.Type, v reflect.Value, path []step) string {
 	var b bytes.Buffer
 	for _, s := range path {
 		switch {
+		case s.deref:
+			v = v.Elem()
 		case s.field >= 0:
 			fmt.Fprintf(&b, ".%s", v.Type().Field(s.field).Name)
 			v = v.Field(s.field)
@@ -89,7 +98,12 @@ func pathName(t reflect.Type, v reflect.Value, path []step) string {
 // reflection, so a field added later is covered without editing the test)
 // and checks that the hash changes (issue 3 point 1).
 func TestHashChangesWithEveryField(t *testing.T) {
-	base := V1()
+	for _, base := range []Settings{V1(), V2()} {
+		t.Run("v"+base.Version, func(t *testing.T) { testHashChangesWithEveryField(t, base) })
+	}
+}
+
+func testHashChangesWithEveryField(t *testing.T, base Settings) {
 	baseHash := base.Hash()
 	var paths [][]step
 	leaves(reflect.ValueOf(base), nil, &paths)

@@ -83,6 +83,8 @@ type markerJSON struct {
 	Unit       string          `json:"unit"`
 	Computable bool            `json:"computable"`
 	Reason     string          `json:"reason"`
+	// Uncertainty: the marker's interval (settings v2 onward).
+	Uncertainty *metrics.Uncertainty `json:"uncertainty,omitempty"`
 }
 
 // conditionsJSON is ingest.Conditions with the quality figures beside.

@@ -192,8 +192,16 @@ func ingestBIDS(e *env, db, dir string, opt intake.BIDSOptions) error {
 	if err != nil && sum.Visits == 0 {
 		return err
 	}
-	fmt.Fprintf(e.stdout, "%d sessions in %s: %d ingested, %d already known, %d failed (%.1f s)\n",
-		sum.Visits, dir, sum.Ingested, sum.Known, len(sum.Failed), sum.Elapsed.Seconds())
+	where := fmt.Sprintf("%d sessions in %s", sum.Visits, dir)
+	if opt.Shards > 0 {
+		where = fmt.Sprintf("%d of the %d sessions in %s (shard %d of %d, numbered from 0)", sum.InShard, sum.Visits, dir, opt.Shard, opt.Shards)
+	}
+	fmt.Fprintf(e.stdout, "%s: %d ingested, %d already known, %d failed, %d duplicates of earlier sessions (%.1f s)\n",
+		where, sum.Ingested, sum.Known, len(sum.Failed), len(sum.Duplicates), sum.Elapsed.Seconds())
+	for _, d := range sum.Duplicates {
+		fmt.Fprintf(e.stdout, "  duplicate %s: holds the same file as the earlier session %s (SHA-256 %s…), which is the one stored\n",
+			d.Visit, d.Of, d.SHA256[:12])
+	}
 	for _, f := range sum.Failed {
 		fmt.Fprintf(e.stdout, "  failed %s: %s\n", f.Visit, oneLine(f.Err.Error()))
 	}

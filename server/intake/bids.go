@@ -2,6 +2,8 @@ package intake
 
 import (
 	"context"
+	"crypto/sha256"
+	"encoding/binary"
 	"fmt"
 	"io"
 	"runtime"
@@ -28,15 +30,30 @@ type BIDSOptions struct {
 	// Progress, when set, is called after each visit (stored, skipped or
 	// failed) with the count done and the total, from one goroutine.
 	Progress func(done, total int)
+	// Shards > 0 ingests only the sessions of slice Shard (0 ≤ Shard <
+	// Shards) of the dataset, as ShardOf assigns them; 0 ingests them all.
+	Shard, Shards int
+}
+
+// Duplicate is a session not stored because an earlier session of the
+// dataset holds the same recording file (by SHA-256).
+type Duplicate struct {
+	Visit  string // "sub-01/ses-02"
+	Of     string // the earlier session, the one stored: "sub-01/ses-01"
+	SHA256 string // the shared file's hash
 }
 
 // BIDSSummary says what a dataset ingest did.
 type BIDSSummary struct {
-	Visits   int       // visits found in the dataset
-	Ingested int       // stored now
-	Known    int       // skipped: their files were stored already
-	Failed   []Failure // visits not stored, and files the reader refused
-	Elapsed  time.Duration
+	Visits   int // visits found in the dataset
+	InShard  int // of those, the visits of the shard ingested (Visits without sharding)
+	Ingested int // stored now
+	Known    int // skipped: their files were stored already
+	// Duplicates are sessions holding a file of an earlier session of the
+	// dataset; the earlier one is stored (see IngestBIDS).
+	Duplicates []Duplicate
+	Failed     []Failure // visits not stored, and files the reader refused
+	Elapsed    time.Duration
 }
 
 // IngestBIDS ingests a BIDS-EEG dataset: participants become patients (code
@@ -52,22 +69,58 @@ type BIDSSummary struct {
 // Visits are decoded and analysed on Workers goroutines while this goroutine
 // stores them one by one, each in its own transaction; a failing visit is
 // reported and the rest go on. The error is non-nil only when the dataset
-// cannot be read at all or ctx ends.
+// cannot be read at all, the shard is out of range, or ctx ends.
+//
+// The result does not depend on the number of workers: every file is hashed
+// before any visit is analysed, and when sessions share a file (byte for
+// byte), only the earliest of them is stored and the others are reported as
+// Duplicates of it. Earliest means the earlier visit date (the day of the
+// session's acq_time), then the smaller session label ("sub-01/ses-01"
+// before "sub-01/ses-02", "sub-01/…" before "sub-02/…"). The key is the day,
+// not the time of day, because the store keeps the visit date and the
+// patient code, so that store.Merge applies exactly this rule across shards.
+// A file stored already by an earlier ingest makes its session Known.
+//
+// With Shards > 0 only the shard's sessions are ingested; ages are still
+// reckoned from each participant's first dated session of the whole dataset,
+// so a shard stores exactly what a whole ingest stores for those sessions.
+// Problems the reader found in a session folder are reported by that
+// session's shard, those outside any session (participants.tsv, a subject's
+// sessions.tsv) by shard 0.
 func (p *Pipeline) IngestBIDS(ctx context.Context, root string, opt BIDSOptions) (BIDSSummary, error) {
 	start := time.Now()
+	if opt.Shards < 0 || opt.Shards > 0 && (opt.Shard < 0 || opt.Shard >= opt.Shards) {
+		return BIDSSummary{}, fmt.Errorf("%w: shard %d of %d: want 0 ≤ shard < shards", ErrRequest, opt.Shard, opt.Shards)
+	}
 	ds, err := bids.Read(root, p.options(""))
 	if err != nil {
 		return BIDSSummary{}, fmt.Errorf("intake: %w", err)
 	}
 	sum := BIDSSummary{Visits: len(ds.Visits)}
 	for _, pr := range ds.Problems {
-		sum.Failed = append(sum.Failed, Failure{Visit: pr.Path, Err: pr.Err})
+		if opt.Shards == 0 || problemShard(pr.Path, opt.Shards) == opt.Shard {
+			sum.Failed = append(sum.Failed, Failure{Visit: pr.Path, Err: pr.Err})
+		}
 	}
 	jobs := planBIDS(ds, opt)
+	if opt.Shards > 0 {
+		mine := jobs[:0]
+		for _, j := range jobs {
+			if ShardOf(j.label, opt.Shards) == opt.Shard {
+				mine = append(mine, j)
+			}
+		}
+		jobs = mine
+	}
+	sum.InShard = len(jobs)
 	workers := opt.Workers
 	if workers <= 0 {
 		workers = runtime.GOMAXPROCS(0)
 	}
+	if err := hashJobs(ctx, jobs, workers); err != nil {
+		return sum, err
+	}
+	markDuplicates(jobs)
 
 	type result struct {
 		job  *bidsJob
@@ -89,7 +142,7 @@ func (p *Pipeline) IngestBIDS(ctx context.Context, root string, opt BIDSOptions)
 				r := result{job: j}
 				if j.err != nil {
 					r.err = j.err
-				} else if r.err = hashParts(j.parts); r.err == nil {
+				} else if j.dupOf == nil {
 					r.out, r.skip, r.err = p.claim(ctx, j.parts)
 					if r.err == nil && !r.skip {
 						visit := j.visit
@@ -131,6 +184,8 @@ func (p *Pipeline) IngestBIDS(ctx context.Context, root string, opt BIDSOptions)
 		switch {
 		case r.err != nil:
 			sum.Failed = append(sum.Failed, Failure{Visit: r.job.label, Err: r.err})
+		case r.job.dupOf != nil:
+			sum.Duplicates = append(sum.Duplicates, Duplicate{Visit: r.job.label, Of: r.job.dupOf.label, SHA256: r.job.dupSHA})
 		case r.skip:
 			sum.Known++
 		default:
@@ -163,7 +218,100 @@ type bidsJob struct {
 	visit bids.Visit
 	req   Request
 	parts []part
-	err   error // a problem found while planning (no date, odd runs)
+	err   error // a problem found while planning (no date, odd runs) or hashing
+	// dupOf is the earlier session holding the file dupSHA of this one.
+	dupOf  *bidsJob
+	dupSHA string
+}
+
+// ShardOf is the shard, 0 ≤ ShardOf < n, of the session with that label
+// ("sub-01/ses-02", or "sub-01" for a subject without session folders): the
+// first 8 bytes of the label's SHA-256 (FIPS 180-4) read as a big-endian
+// unsigned integer, modulo n. It depends on the label alone, never on the
+// order in which files are listed, so every shard process computes the same
+// partition. n must be positive.
+func ShardOf(label string, n int) int {
+	h := sha256.Sum256([]byte(label))
+	return int(binary.BigEndian.Uint64(h[:8]) % uint64(n))
+}
+
+// problemShard is the shard that reports a reader problem at rel (a
+// slash-separated path in the dataset): the shard of the session folder it
+// lies in, 0 when it lies in none.
+func problemShard(rel string, n int) int {
+	el := strings.Split(rel, "/")
+	switch {
+	case len(el) >= 3 && strings.HasPrefix(el[0], "sub-") && strings.HasPrefix(el[1], "ses-"):
+		return ShardOf(el[0]+"/"+el[1], n)
+	case len(el) >= 3 && strings.HasPrefix(el[0], "sub-") && el[1] == "eeg":
+		return ShardOf(el[0], n)
+	}
+	return 0
+}
+
+// hashJobs hashes every file of the jobs on workers goroutines; a file that
+// cannot be read fails its job.
+func hashJobs(ctx context.Context, jobs []*bidsJob, workers int) error {
+	ch := make(chan *bidsJob)
+	var wg sync.WaitGroup
+	for w := 0; w < workers; w++ {
+		wg.Add(1)
+		go func() {
+			defer wg.Done()
+			for j := range ch {
+				if err := hashParts(j.parts); err != nil {
+					j.err = err
+				}
+			}
+		}()
+	}
+	for _, j := range jobs {
+		if j.err != nil {
+			continue
+		}
+		select {
+		case ch <- j:
+		case <-ctx.Done():
+		}
+		if ctx.Err() != nil {
+			break
+		}
+	}
+	close(ch)
+	wg.Wait()
+	return ctx.Err()
+}
+
+// markDuplicates marks each job that holds a file of an earlier job (by
+// date, then label; see IngestBIDS) as its duplicate. A duplicate's other
+// files are not claimed, since it is not stored.
+func markDuplicates(jobs []*bidsJob) {
+	order := make([]*bidsJob, 0, len(jobs))
+	for _, j := range jobs {
+		if j.err == nil {
+			order = append(order, j)
+		}
+	}
+	sort.SliceStable(order, func(a, b int) bool {
+		if order[a].req.Date != order[b].req.Date {
+			return order[a].req.Date < order[b].req.Date
+		}
+		return order[a].label < order[b].label
+	})
+	owner := map[string]*bidsJob{}
+	for _, j := range order {
+		for _, pt := range j.parts {
+			if o, ok := owner[pt.sha]; ok {
+				j.dupOf, j.dupSHA = o, pt.sha
+				break
+			}
+		}
+		if j.dupOf == nil {
+			for _, pt := range j.parts {
+				owner[pt.sha] = j
+			}
+		}
+	}
 }
 
 // planBIDS turns the dataset's sessions into requests: patient fields from

@@ -4,6 +4,8 @@ import (
 	"flag"
 	"fmt"
 	"io"
+	"os"
+	"strconv"
 	"strings"
 	"time"
 
@@ -29,6 +31,22 @@ most one visit a day. BIDS gives the age at each session, not a birth date:
 the age is stored with the visit and the birth year stays unknown. The
 recording files are kept in the data folder beside the database so that
 "longwave reprocess" can run them again; the file names are not kept.
+
+Sessions holding the same file (byte for byte) are stored once: the earliest
+by visit date, then by label (sub-01/ses-01 before sub-01/ses-02), whatever
+the number of workers; the others are listed as duplicates.
+
+Sharded ingest (a batch scheduler's array of tasks, then "longwave merge"):
+--shard K/N ingests the sessions whose slice is K, numbered from 0 to N-1.
+A session's slice is the first 8 bytes of the SHA-256 of its label
+("sub-01/ses-02", or "sub-01" without session folders), read as a big-endian
+number, modulo N: it never depends on the order of the files. Run every K
+from 0 to N-1, each into its own database, with the same dataset and flags.
+--shard auto takes K from the scheduler: under SLURM, K is
+SLURM_ARRAY_TASK_ID minus SLURM_ARRAY_TASK_MIN (divided by
+SLURM_ARRAY_TASK_STEP) and N is SLURM_ARRAY_TASK_COUNT (--array=0-3 or 1-4
+both give K = 0…3); in a Kubernetes Indexed Job, K is JOB_COMPLETION_INDEX
+(0-based) and N must be given with --shards (the Job's completions).
 `,
 		setup: func(fs *flag.FlagSet, e *env) func([]string) error {
 			db := dbFlag(fs)
@@ -46,12 +64,23 @@ recording files are kept in the data folder beside the database so that
 			bidsDir := fs.String("bids", "", "ingest the BIDS-EEG dataset in `DIR` instead of one visit")
 			workers := fs.Int("workers", 0, "visits analysed in parallel with --bids (`N`; 0: one per core)")
 			prefix := fs.String("code-prefix", "", "with --bids, put `TEXT` before each participant_id to make the patient code")
+			shard := fs.String("shard", "", "with --bids, ingest only slice `K/N` of the sessions (K from 0 to N-1), or auto: K (and N) from "+
+				"SLURM_ARRAY_TASK_ID/SLURM_ARRAY_TASK_COUNT or JOB_COMPLETION_INDEX")
+			shards := fs.Int("shards", 0, "with --shard auto, the number of slices `N` (required with JOB_COMPLETION_INDEX)")
 			return func(args []string) error {
 				if *bidsDir != "" {
 					if len(args) > 0 || *patient != "" || *date != "" || *closed != "" || *open != "" {
 						return usagef("--bids takes no FILE, --patient, --date, --closed or --open")
 					}
-					return ingestBIDS(e, *db, *bidsDir, intake.BIDSOptions{Workers: *workers, CodePrefix: *prefix, Cohort: *cohort, Group: *group})
+					opt := intake.BIDSOptions{Workers: *workers, CodePrefix: *prefix, Cohort: *cohort, Group: *group}
+					var err error
+					if opt.Shard, opt.Shards, err = parseShard(*shard, *shards, os.Getenv); err != nil {
+						return err
+					}
+					return ingestBIDS(e, *db, *bidsDir, opt)
+				}
+				if *shard != "" || *shards != 0 {
+					return usagef("--shard and --shards go with --bids")
 				}
 				if len(args) > 1 {
 					return usagef("one recording FILE at most, got %d", len(args))
@@ -223,4 +252,91 @@ func drawProgress(w io.Writer, done, total int, elapsed time.Duration) {
 	}
 	fmt.Fprintf(w, "\r[%s%s] %d/%d visits  %s ", strings.Repeat("=", filled), strings.Repeat(" ", width-filled),
 		done, total, elapsed.Round(time.Second))
+}
+
+// parseShard reads --shard and --shards into a 0-based slice index and a
+// slice count (0, 0: no sharding). getenv reads the scheduler's variables
+// for --shard auto.
+func parseShard(shard string, shards int, getenv func(string) string) (int, int, error) {
+	switch {
+	case shard == "" && shards != 0:
+		return 0, 0, usagef("--shards goes with --shard auto")
+	case shard == "":
+		return 0, 0, nil
+	case shard != "auto":
+		if shards != 0 {
+			return 0, 0, usagef("--shards goes with --shard auto; --shard %s names the count itself", shard)
+		}
+		ks, ns, ok := strings.Cut(shard, "/")
+		k, errK := strconv.Atoi(ks)
+		n, errN := strconv.Atoi(ns)
+		if !ok || errK != nil || errN != nil || n < 1 || k < 0 || k >= n {
+			return 0, 0, usagef("--shard %q: want K/N with 0 ≤ K < N (slices are numbered from 0), or auto", shard)
+		}
+		return k, n, nil
+	}
+	if shards < 0 {
+		return 0, 0, usagef("--shards %d: want a positive count", shards)
+	}
+	slurm, kube := getenv("SLURM_ARRAY_TASK_ID"), getenv("JOB_COMPLETION_INDEX")
+	envInt := func(name, def string) (int, error) {
+		v := getenv(name)
+		if v == "" {
+			v = def
+		}
+		n, err := strconv.Atoi(v)
+		if err != nil || n < 0 {
+			return 0, usagef("--shard auto: %s=%q is not a whole number ≥ 0", name, v)
+		}
+		return n, nil
+	}
+	switch {
+	case slurm != "" && kube != "":
+		return 0, 0, usagef("--shard auto: both SLURM_ARRAY_TASK_ID and JOB_COMPLETION_INDEX are set; give --shard K/N")
+	case slurm != "":
+		id, err := envInt("SLURM_ARRAY_TASK_ID", "")
+		if err != nil {
+			return 0, 0, err
+		}
+		if getenv("SLURM_ARRAY_TASK_COUNT") == "" {
+			return 0, 0, usagef("--shard auto: SLURM_ARRAY_TASK_ID is set but SLURM_ARRAY_TASK_COUNT is not (not a job array?)")
+		}
+		count, err := envInt("SLURM_ARRAY_TASK_COUNT", "")
+		if err != nil {
+			return 0, 0, err
+		}
+		lo, err := envInt("SLURM_ARRAY_TASK_MIN", "0")
+		if err != nil {
+			return 0, 0, err
+		}
+		step, err := envInt("SLURM_ARRAY_TASK_STEP", "1")
+		if err != nil {
+			return 0, 0, err
+		}
+		if step == 0 {
+			step = 1
+		}
+		if count < 1 || id < lo || (id-lo)%step != 0 || (id-lo)/step >= count {
+			return 0, 0, usagef("--shard auto: SLURM_ARRAY_TASK_ID=%d is not one of the %d tasks from %d in steps of %d; "+
+				"submit the array as one range (--array=0-%d)", id, count, lo, step, max(count-1, 0))
+		}
+		if shards != 0 && shards != count {
+			return 0, 0, usagef("--shards %d, but the SLURM array has %d tasks (SLURM_ARRAY_TASK_COUNT)", shards, count)
+		}
+		return (id - lo) / step, count, nil
+	case kube != "":
+		if shards == 0 {
+			return 0, 0, usagef("--shard auto with JOB_COMPLETION_INDEX needs --shards N (the Job's completions)")
+		}
+		k, err := envInt("JOB_COMPLETION_INDEX", "")
+		if err != nil {
+			return 0, 0, err
+		}
+		if k >= shards {
+			return 0, 0, usagef("--shard auto: JOB_COMPLETION_INDEX=%d is not below --shards %d", k, shards)
+		}
+		return k, shards, nil
+	}
+	return 0, 0, usagef("--shard auto: neither SLURM_ARRAY_TASK_ID (a SLURM job array) nor JOB_COMPLETION_INDEX " +
+		"(a Kubernetes Indexed Job) is set; give --shard K/N")
 }

@@ -13,7 +13,19 @@ import (
 
 // ErrMergeConflict: the databases to merge disagree (a patient fact, a
 // visit's recordings, the settings of an analysis); nothing was merged.
+// The error is a *MergeConflictError listing every problem.
 var ErrMergeConflict = errors.New("store: merge refused")
+
+// MergeConflictError lists every problem that made Merge refuse.
+type MergeConflictError struct {
+	Problems []string // one line each, naming the patient or file
+}
+
+func (e *MergeConflictError) Error() string {
+	return fmt.Sprintf("%v: %d problem(s), nothing merged: %s", ErrMergeConflict, len(e.Problems), strings.Join(e.Problems, "; "))
+}
+
+func (e *MergeConflictError) Is(target error) bool { return target == ErrMergeConflict }
 
 // MergeOptions configure Merge.
 type MergeOptions struct {
@@ -105,11 +117,12 @@ func (s *Store) Merge(ctx context.Context, parts []*Store, opt MergeOptions) (Me
 	names := make([]string, len(parts))
 	for i, p := range parts {
 		names[i] = filepath.Base(p.Path())
-		if err := s.checkPart(ctx, p, opt); err != nil {
-			if !errors.Is(err, ErrMergeConflict) {
-				return rep, err
-			}
-			problems = append(problems, strings.TrimPrefix(err.Error(), ErrMergeConflict.Error()+": "))
+		problem, err := s.checkPart(ctx, p, opt)
+		if err != nil {
+			return rep, err
+		}
+		if problem != "" {
+			problems = append(problems, problem)
 		}
 	}
 	if len(problems) > 0 {
@@ -311,41 +324,41 @@ func (s *Store) Merge(ctx context.Context, parts []*Store, opt MergeOptions) (Me
 	return rep, nil
 }
 
-// mergeRefused joins every problem into one error.
+// mergeRefused returns the problems as one error.
 func mergeRefused(problems []string) error {
-	return fmt.Errorf("%w: %d problem(s), nothing merged: %s", ErrMergeConflict, len(problems), strings.Join(problems, "; "))
+	return &MergeConflictError{Problems: problems}
 }
 
-// checkPart refuses the store itself, a part of another schema version, and
-// a part holding visits analysed with other settings.
-func (s *Store) checkPart(ctx context.Context, p *Store, opt MergeOptions) error {
+// checkPart returns the problem that refuses a part ("" none): the store
+// itself, another schema version, visits analysed with other settings.
+func (s *Store) checkPart(ctx context.Context, p *Store, opt MergeOptions) (string, error) {
 	name := filepath.Base(p.Path())
 	a, errA := os.Stat(s.Path())
 	b, errB := os.Stat(p.Path())
 	if errA == nil && errB == nil && os.SameFile(a, b) {
-		return fmt.Errorf("%w: %s is the database merged into", ErrMergeConflict, name)
+		return name + " is the database merged into", nil
 	}
 	mine, err := s.SchemaVersion(ctx)
 	if err != nil {
-		return fmt.Errorf("store: merge: %w", err)
+		return "", fmt.Errorf("store: merge: %w", err)
 	}
 	theirs, err := p.SchemaVersion(ctx)
 	if err != nil {
-		return fmt.Errorf("store: merge %s: %w", name, err)
+		return "", fmt.Errorf("store: merge %s: %w", name, err)
 	}
 	if mine != theirs {
-		return fmt.Errorf("%w: %s has schema version %d, the database merged into %d", ErrMergeConflict, name, theirs, mine)
+		return fmt.Sprintf("%s has schema version %d, the database merged into %d", name, theirs, mine), nil
 	}
 	other, err := p.VisitsWithOtherSettings(ctx, opt.SettingsVersion, opt.SettingsHash)
 	if err != nil {
-		return fmt.Errorf("store: merge %s: %w", name, err)
+		return "", fmt.Errorf("store: merge %s: %w", name, err)
 	}
 	if len(other) > 0 {
-		return fmt.Errorf("%w: %s holds %d visit(s) not analysed with settings %s (hash %s…); "+
+		return fmt.Sprintf("%s holds %d visit(s) not analysed with settings %s (hash %s…); "+
 			"run longwave reprocess on it, or ingest its shard again, with this longwave",
-			ErrMergeConflict, name, len(other), opt.SettingsVersion, opt.SettingsHash[:min(12, len(opt.SettingsHash))])
+			name, len(other), opt.SettingsVersion, opt.SettingsHash[:min(12, len(opt.SettingsHash))]), nil
 	}
-	return nil
+	return "", nil
 }
 
 // patientFacts are the fields of a patient two databases must agree on.

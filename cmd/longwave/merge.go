@@ -33,7 +33,8 @@ The recording files of the new visits are copied from each part's data folder
 (PART.db.data/) and checked against their SHA-256 before the one transaction
 that writes the rows; when it fails, the files it copied are removed again.
 The parts are brought to this program's schema when opened and otherwise
-left as they are.
+left as they are. Users, sign-in sessions and the audit log of the parts are
+not merged.
 `,
 		setup: func(fs *flag.FlagSet, e *env) func([]string) error {
 			db := dbFlag(fs)

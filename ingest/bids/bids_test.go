@@ -328,3 +328,50 @@ func TestReadNotAFolder(t *testing.T) {
 		t.Error("Read of a missing folder: no error")
 	}
 }
+
+// TestScansAcqTime: each file's acq_time from its session's scans.tsv
+// (BIDS: filename relative to the session folder, acq_time optional;
+// FORMATS.md §2.5), the earliest of a visit's files, and a bad time
+// reported with its line.
+func TestScansAcqTime(t *testing.T) {
+	root := t.TempDir()
+	edf := recording(t, 1, ingest.FormatEDF, 10, nil)
+	put(t, root, map[string]string{
+		"sub-01/ses-01/eeg/sub-01_ses-01_task-eyesclosed_eeg.edf": edf,
+		"sub-01/ses-01/eeg/sub-01_ses-01_task-eyesopen_eeg.edf":   edf,
+		"sub-01/ses-01/sub-01_ses-01_scans.tsv": "filename\tacq_time\n" +
+			"eeg/sub-01_ses-01_task-eyesopen_eeg.edf\t2023-05-02T09:20:00\n" +
+			"eeg/sub-01_ses-01_task-eyesclosed_eeg.edf\t2023-05-02T09:10:00\n",
+		"sub-01/ses-02/eeg/sub-01_ses-02_task-rest_eeg.edf": edf,
+		"sub-01/ses-02/sub-01_ses-02_scans.tsv":             "filename\tacq_time\neeg/sub-01_ses-02_task-rest_eeg.edf\t02.05.2024\n",
+		"sub-02/eeg/sub-02_task-rest_eeg.edf":               edf,
+		"sub-02/sub-02_scans.tsv":                           "filename\tacq_time\neeg/sub-02_task-rest_eeg.edf\t2022-01-03T08:00:00+01:00\n",
+	})
+	d, err := Read(root, ingest.Options{})
+	if err != nil {
+		t.Fatal(err)
+	}
+	got := map[string]string{}
+	for _, v := range d.Visits {
+		got[v.Subject+"/"+v.Session] = v.FirstScanTime()
+	}
+	want := map[string]string{"sub-01/ses-01": "2023-05-02T09:10:00", "sub-01/ses-02": "", "sub-02/": "2022-01-03T08:00:00+01:00"}
+	if len(got) != len(want) {
+		t.Fatalf("visits %v, want %v", got, want)
+	}
+	for k, w := range want {
+		if got[k] != w {
+			t.Errorf("%s: first scan %q, want %q", k, got[k], w)
+		}
+	}
+	found := false
+	for _, p := range d.Problems {
+		var fe *ingest.FormatError
+		if p.Path == "sub-01/ses-02/sub-01_ses-02_scans.tsv" && errors.As(p.Err, &fe) && fe.Line == 2 && fe.Field == "acq_time" {
+			found = true
+		}
+	}
+	if !found {
+		t.Errorf("bad acq_time not reported with its file and line: %v", d.Problems)
+	}
+}

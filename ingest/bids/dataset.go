@@ -52,12 +52,33 @@ type Visit struct {
 	Files   []File // supported data files, sorted by name
 }
 
+// FirstScanTime is the earliest acq_time the scans.tsv gives for the
+// visit's files ("" when it gives none). Times with a UTC offset are
+// compared in UTC, times without one as written (BIDS: the viewer's local
+// time).
+func (v Visit) FirstScanTime() string {
+	first, firstAt := "", time.Time{}
+	for _, f := range v.Files {
+		if f.AcqTime == "" {
+			continue
+		}
+		at, ok := parseAcqTime(f.AcqTime)
+		if ok && (first == "" || at.Before(firstAt)) {
+			first, firstAt = f.AcqTime, at
+		}
+	}
+	return first
+}
+
 // File is one supported data file of a visit with its sidecars.
 type File struct {
 	Path string // absolute path of the .edf/.bdf
 	Task string // task label ("rest", "eyesclosed", …)
 	Acq  string // acquisition label, "" when none
 	Run  string // run index as written, "" when none
+	// AcqTime is the file's acq_time in the scans.tsv
+	// (sub-<label>[_ses-<label>]_scans.tsv) as written, "" when not given.
+	AcqTime string
 	// Format from the extension (FormatEDF or FormatBDF); the decoded
 	// recording's Conditions.Format tells EDF+ apart.
 	Format ingest.Format
@@ -167,6 +188,14 @@ func (d *Dataset) addVisit(root, sub, ses, acqTime string, phrases ingest.EyePhr
 		return
 	}
 	v := Visit{Subject: sub, Session: ses, AcqTime: acqTime}
+	scansName := sub + "_scans.tsv"
+	if ses != "" {
+		scansName = sub + "_" + ses + "_scans.tsv"
+	}
+	var scans map[string]string
+	if p := filepath.Join(root, sub, ses, scansName); fileExists(p) {
+		scans = readScans(p, func(err error) { problem(path.Join(sub, ses, scansName), err) })
+	}
 	names := map[string]bool{}
 	for _, e := range entries {
 		names[e.Name()] = true
@@ -191,7 +220,8 @@ func (d *Dataset) addVisit(root, sub, ses, acqTime string, phrases ingest.EyePhr
 		}
 		base := strings.TrimSuffix(stem, "_eeg")
 		ent := entities(base)
-		f := File{Path: filepath.Join(dir, name), Task: ent["task"], Acq: ent["acq"], Run: ent["run"], Format: format}
+		f := File{Path: filepath.Join(dir, name), Task: ent["task"], Acq: ent["acq"], Run: ent["run"], Format: format,
+			AcqTime: scans["eeg/"+name]}
 		f.loadSidecars(root, dir, base, ent, names, phrases, func(sidecar string, err error) {
 			problem(path.Join(rel, sidecar), err)
 		})
@@ -381,18 +411,54 @@ func readSessions(p string, problem func(error)) map[string]string {
 			continue
 		}
 		v := r.fields[cAcq]
-		ok := false
-		for _, l := range acqTimeLayouts {
-			if _, err := time.Parse(l, v); err == nil {
-				ok = true
-				break
-			}
-		}
-		if !ok {
+		if _, ok := parseAcqTime(v); !ok {
 			problem(t.errAt(r.line, "acq_time", "%q is not a date and time YYYY-MM-DDThh:mm:ss", v))
 			continue
 		}
 		out[id] = v
+	}
+	return out
+}
+
+// parseAcqTime reads a BIDS datetime in any of acqTimeLayouts.
+func parseAcqTime(v string) (time.Time, bool) {
+	for _, l := range acqTimeLayouts {
+		if t, err := time.Parse(l, v); err == nil {
+			return t, true
+		}
+	}
+	return time.Time{}, false
+}
+
+// readScans maps a scans.tsv's filename (relative to the session folder,
+// slash-separated: "eeg/sub-01_ses-01_task-rest_eeg.edf") to its acq_time;
+// an acq_time that is not a BIDS datetime is a problem with its line and
+// left out.
+func readScans(p string, problem func(error)) map[string]string {
+	out := map[string]string{}
+	t, err := readTable(p)
+	if err != nil {
+		problem(err)
+		return out
+	}
+	cFile, cAcq := t.col("filename"), t.col("acq_time")
+	if cFile < 0 {
+		problem(t.errAt(1, "filename", "required column missing"))
+		return out
+	}
+	if cAcq < 0 {
+		return out
+	}
+	for _, r := range t.rows {
+		v := r.fields[cAcq]
+		if isNA(v) {
+			continue
+		}
+		if _, ok := parseAcqTime(v); !ok {
+			problem(t.errAt(r.line, "acq_time", "%q is not a date and time YYYY-MM-DDThh:mm:ss", v))
+			continue
+		}
+		out[path.Clean(strings.ReplaceAll(r.fields[cFile], "\\", "/"))] = v
 	}
 	return out
 }

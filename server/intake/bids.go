@@ -62,7 +62,8 @@ type BIDSSummary struct {
 // age is stored on each visit (the participants.tsv age, plus the time from
 // the participant's first dated session) and the birth year is left 0 rather
 // than invented. The visit date is the session's acquisition date (the
-// subject's sessions.tsv acq_time); a session without one fails with that
+// subject's sessions.tsv acq_time, else the earliest acq_time of the
+// session's files in its scans.tsv); a session without one fails with that
 // reason rather than get an invented date, since a course is drawn over
 // dates and longwave keeps one visit per patient per day.
 //
@@ -325,7 +326,7 @@ func planBIDS(ds *bids.Dataset, opt BIDSOptions) []*bidsJob {
 	first := map[string]time.Time{}
 	dates := make([]time.Time, len(ds.Visits))
 	for i, v := range ds.Visits {
-		if d, ok := acqDate(v.AcqTime); ok {
+		if d, ok := acqDate(visitTime(v)); ok {
 			dates[i] = d
 			if f, seen := first[normSub(v.Subject)]; !seen || d.Before(f) {
 				first[normSub(v.Subject)] = d
@@ -343,7 +344,8 @@ func planBIDS(ds *bids.Dataset, opt BIDSOptions) []*bidsJob {
 		pt := people[sub]
 		j.req = Request{PatientCode: opt.CodePrefix + sub, Sex: pt.Sex, Cohort: opt.Cohort, Group: opt.Group}
 		if dates[i].IsZero() {
-			j.err = fmt.Errorf("intake: %s: no acquisition date (acq_time in the subject's sessions.tsv); a visit needs a date", label)
+			j.err = fmt.Errorf("intake: %s: no acquisition date (acq_time in the subject's sessions.tsv or the session's scans.tsv); "+
+				"a visit needs a date", label)
 		} else {
 			j.req.Date = dates[i].Format(time.DateOnly)
 			if pt.AgeKnown {
@@ -442,6 +444,16 @@ func normSes(s string) string {
 		return s
 	}
 	return "ses-" + s
+}
+
+// visitTime is when the session was recorded: its acq_time in the subject's
+// sessions.tsv, else the earliest acq_time of its files in the session's
+// scans.tsv ("" when neither gives one).
+func visitTime(v bids.Visit) string {
+	if v.AcqTime != "" {
+		return v.AcqTime
+	}
+	return v.FirstScanTime()
 }
 
 // acqDate reads the date of a BIDS acq_time ("YYYY-MM-DDThh:mm:ss[.frac][Z]").

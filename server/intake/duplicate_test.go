@@ -2,6 +2,7 @@ package intake_test
 
 import (
 	"fmt"
+	"path/filepath"
 	"slices"
 	"strings"
 	"testing"
@@ -41,12 +42,13 @@ func dumpStore(tb testing.TB, p *intake.Pipeline) []string {
 // TestBIDSDuplicatesDoNotDependOnWorkers: sessions holding byte-identical
 // files give the same database whatever the number of workers; the earlier
 // session (by date, then label) is stored and the later one is reported as
-// its duplicate.
+// its duplicate. Dates come from sessions.tsv, or from scans.tsv where it
+// gives none (BIDS: both carry an optional acq_time; FORMATS.md §2.5).
 func TestBIDSDuplicatesDoNotDependOnWorkers(t *testing.T) {
 	root := t.TempDir()
 	same := [4][]byte{shortFile(t, 70), shortFile(t, 71), shortFile(t, 72), shortFile(t, 73)}
 	writeBIDS(t, root, map[string][2]string{"sub-01": {"70", "F"}, "sub-02": {"66", "M"}, "sub-03": {"74", "F"},
-		"sub-04": {"69", "M"}, "sub-05": {"72", "F"}},
+		"sub-04": {"69", "M"}, "sub-05": {"72", "F"}, "sub-06": {"75", "M"}},
 		[]bidsSession{
 			{"sub-01", "ses-01", "2021-01-11T09:00:00", same[0]},
 			{"sub-01", "ses-02", "2022-01-10T09:00:00", same[0]},
@@ -60,9 +62,17 @@ func TestBIDSDuplicatesDoNotDependOnWorkers(t *testing.T) {
 			// Another subject's copy of sub-01's first file, the same day:
 			// the label decides (sub-01 before sub-05).
 			{"sub-05", "ses-01", "2021-01-11T08:00:00", same[0]},
+			// No acq_time in sessions.tsv: the scans.tsv written below
+			// dates them, ses-02 first.
+			{"sub-06", "ses-01", "", shortFile(t, 75)},
+			{"sub-06", "ses-02", "", shortFile(t, 75)},
 		})
+	for ses, at := range map[string]string{"ses-01": "2022-06-06T11:00:00", "ses-02": "2021-06-07T11:00:00"} {
+		writeFile(t, root, filepath.Join("sub-06", ses, "sub-06_"+ses+"_scans.tsv"),
+			[]byte("filename\tacq_time\neeg/sub-06_"+ses+"_task-rest_eeg.edf\t"+at+"\n"))
+	}
 	wantDup := map[string]string{"sub-01/ses-02": "sub-01/ses-01", "sub-02/ses-02": "sub-02/ses-01",
-		"sub-03/ses-01": "sub-03/ses-02", "sub-05/ses-01": "sub-01/ses-01"}
+		"sub-03/ses-01": "sub-03/ses-02", "sub-05/ses-01": "sub-01/ses-01", "sub-06/ses-01": "sub-06/ses-02"}
 	var first []string
 	for _, workers := range []int{1, 2, 4} {
 		p, _ := newPipeline(t)
@@ -70,8 +80,8 @@ func TestBIDSDuplicatesDoNotDependOnWorkers(t *testing.T) {
 		if err != nil || len(sum.Failed) != 0 {
 			t.Fatalf("%d workers: %+v %v", workers, sum, err)
 		}
-		if sum.Ingested != 5 || len(sum.Duplicates) != 4 || sum.Known != 0 {
-			t.Errorf("%d workers: %d ingested, %d duplicates, %d known; want 5, 4, 0", workers, sum.Ingested, len(sum.Duplicates), sum.Known)
+		if sum.Ingested != 6 || len(sum.Duplicates) != 5 || sum.Known != 0 {
+			t.Errorf("%d workers: %d ingested, %d duplicates, %d known; want 6, 5, 0", workers, sum.Ingested, len(sum.Duplicates), sum.Known)
 		}
 		for _, d := range sum.Duplicates {
 			if wantDup[d.Visit] != d.Of || len(d.SHA256) != 64 {
@@ -86,13 +96,13 @@ func TestBIDSDuplicatesDoNotDependOnWorkers(t *testing.T) {
 				f := strings.Fields(line)
 				dates = append(dates, f[0]+" "+f[1])
 			}
-			want := []string{"sub-01 2021-01-11", "sub-02 2021-02-01", "sub-03 2021-03-01", "sub-04 2021-04-05", "sub-04 2022-04-04"}
+			want := []string{"sub-01 2021-01-11", "sub-02 2021-02-01", "sub-03 2021-03-01", "sub-04 2021-04-05", "sub-04 2022-04-04", "sub-06 2021-06-07"}
 			if !slices.Equal(dates, want) {
 				t.Errorf("stored visits %v, want %v", dates, want)
 			}
 			// Again: every session is known or a duplicate, nothing added.
 			again, err := p.IngestBIDS(bg, root, intake.BIDSOptions{Workers: 3})
-			if err != nil || again.Ingested != 0 || again.Known != 5 || len(again.Duplicates) != 4 {
+			if err != nil || again.Ingested != 0 || again.Known != 6 || len(again.Duplicates) != 5 {
 				t.Errorf("second run: %+v %v", again, err)
 			}
 			continue

@@ -27,7 +27,7 @@ func run(t *testing.T, stdin string, args ...string) (int, string, string) {
 }
 
 // recording writes a two-minute synthetic EDF+C (eyes closed then open).
-func recording(t *testing.T, dir, name string, seed uint64) string {
+func recording(t testing.TB, dir, name string, seed uint64) string {
 	t.Helper()
 	s := synth.Default()
 	s.Seed = seed

@@ -1,6 +1,7 @@
 package intake_test
 
 import (
+	"errors"
 	"fmt"
 	"path/filepath"
 	"slices"
@@ -151,6 +152,43 @@ func TestShardOfIsStable(t *testing.T) {
 	for k, n := range counts {
 		if n < 70 || n > 130 {
 			t.Errorf("shard %d holds %d of 400 sessions, want about 100", k, n)
+		}
+	}
+}
+
+// TestShardReportsOwnProblems: a problem inside a session folder is
+// reported by that session's shard only, a dataset-wide one by shard 0, so
+// that the shards' reports add up to the whole ingest's.
+func TestShardReportsOwnProblems(t *testing.T) {
+	root := t.TempDir()
+	writeFile(t, root, "participants.tsv", []byte("participant_id\tage\nsub-01\told\n"))
+	writeFile(t, root, "sub-01/ses-01/eeg/sub-01_ses-01_task-rest_eeg.vhdr", []byte("not read"))
+	writeFile(t, root, "sub-02/eeg/sub-02_task-rest_eeg.set", []byte("not read"))
+	want := map[string]int{"participants.tsv": 0,
+		"sub-01/ses-01/eeg/sub-01_ses-01_task-rest_eeg.vhdr": intake.ShardOf("sub-01/ses-01", 4),
+		"sub-02/eeg/sub-02_task-rest_eeg.set":                intake.ShardOf("sub-02", 4)}
+	p, _ := newPipeline(t)
+	seen := map[string]int{}
+	for k := 0; k < 4; k++ {
+		sum, err := p.IngestBIDS(bg, root, intake.BIDSOptions{Shard: k, Shards: 4})
+		if err != nil {
+			t.Fatal(err)
+		}
+		for _, f := range sum.Failed {
+			if w, ok := want[f.Visit]; !ok || w != k {
+				t.Errorf("shard %d reports %s (%v), want it in shard %d", k, f.Visit, f.Err, w)
+			}
+			seen[f.Visit]++
+		}
+	}
+	for path := range want {
+		if seen[path] != 1 {
+			t.Errorf("%s reported by %d shards, want 1", path, seen[path])
+		}
+	}
+	for _, bad := range []intake.BIDSOptions{{Shard: 4, Shards: 4}, {Shard: -1, Shards: 2}, {Shards: -1}} {
+		if _, err := p.IngestBIDS(bg, root, bad); !errors.Is(err, intake.ErrRequest) {
+			t.Errorf("shard %d of %d: err %v, want ErrRequest", bad.Shard, bad.Shards, err)
 		}
 	}
 }

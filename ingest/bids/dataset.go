@@ -394,19 +394,26 @@ var acqTimeLayouts = []string{"2006-01-02T15:04:05Z07:00", "2006-01-02T15:04:05.
 // readSessions maps session_id to acq_time; an acq_time that is not a BIDS
 // datetime is a problem with its line and left out.
 func readSessions(p string, problem func(error)) map[string]string {
+	return readAcqTimes(p, "session_id", problem)
+}
+
+// readAcqTimes maps the key column of a sessions.tsv or scans.tsv to the
+// row's acq_time (rows with n/a or no acq_time column are left out); an
+// acq_time that is not a BIDS datetime is a problem with its line and left
+// out.
+func readAcqTimes(p, key string, problem func(error)) map[string]string {
 	out := map[string]string{}
 	t, err := readTable(p)
 	if err != nil {
 		problem(err)
 		return out
 	}
-	cID, cAcq := t.col("session_id"), t.col("acq_time")
-	if cID < 0 {
-		problem(t.errAt(1, "session_id", "required column missing"))
+	cKey, cAcq := t.col(key), t.col("acq_time")
+	if cKey < 0 {
+		problem(t.errAt(1, key, "required column missing"))
 		return out
 	}
 	for _, r := range t.rows {
-		id := r.fields[cID]
 		if cAcq < 0 || isNA(r.fields[cAcq]) {
 			continue
 		}
@@ -415,7 +422,7 @@ func readSessions(p string, problem func(error)) map[string]string {
 			problem(t.errAt(r.line, "acq_time", "%q is not a date and time YYYY-MM-DDThh:mm:ss", v))
 			continue
 		}
-		out[id] = v
+		out[r.fields[cKey]] = v
 	}
 	return out
 }
@@ -431,34 +438,12 @@ func parseAcqTime(v string) (time.Time, bool) {
 }
 
 // readScans maps a scans.tsv's filename (relative to the session folder,
-// slash-separated: "eeg/sub-01_ses-01_task-rest_eeg.edf") to its acq_time;
-// an acq_time that is not a BIDS datetime is a problem with its line and
-// left out.
+// slash-separated: "eeg/sub-01_ses-01_task-rest_eeg.edf") to its acq_time,
+// as readAcqTimes.
 func readScans(p string, problem func(error)) map[string]string {
 	out := map[string]string{}
-	t, err := readTable(p)
-	if err != nil {
-		problem(err)
-		return out
-	}
-	cFile, cAcq := t.col("filename"), t.col("acq_time")
-	if cFile < 0 {
-		problem(t.errAt(1, "filename", "required column missing"))
-		return out
-	}
-	if cAcq < 0 {
-		return out
-	}
-	for _, r := range t.rows {
-		v := r.fields[cAcq]
-		if isNA(v) {
-			continue
-		}
-		if _, ok := parseAcqTime(v); !ok {
-			problem(t.errAt(r.line, "acq_time", "%q is not a date and time YYYY-MM-DDThh:mm:ss", v))
-			continue
-		}
-		out[path.Clean(strings.ReplaceAll(r.fields[cFile], "\\", "/"))] = v
+	for name, v := range readAcqTimes(p, "filename", problem) {
+		out[path.Clean(strings.ReplaceAll(name, "\\", "/"))] = v
 	}
 	return out
 }

@@ -45,7 +45,7 @@ from 0 to N-1, each into its own database, with the same dataset and flags.
 --shard auto takes K from the scheduler: under SLURM, K is
 SLURM_ARRAY_TASK_ID minus SLURM_ARRAY_TASK_MIN (divided by
 SLURM_ARRAY_TASK_STEP) and N is SLURM_ARRAY_TASK_COUNT (--array=0-3 or 1-4
-both give K = 0…3); in a Kubernetes Indexed Job, K is JOB_COMPLETION_INDEX
+both give K = 0…3; a list of indexes such as --array=1,2,9 is refused); in a Kubernetes Indexed Job, K is JOB_COMPLETION_INDEX
 (0-based) and N must be given with --shards (the Job's completions).
 `,
 		setup: func(fs *flag.FlagSet, e *env) func([]string) error {
@@ -316,7 +316,13 @@ func parseShard(shard string, shards int, getenv func(string) string) (int, int,
 		if step == 0 {
 			step = 1
 		}
-		if count < 1 || id < lo || (id-lo)%step != 0 || (id-lo)/step >= count {
+		hi, err := envInt("SLURM_ARRAY_TASK_MAX", strconv.Itoa(lo+(count-1)*step))
+		if err != nil {
+			return 0, 0, err
+		}
+		// A list of indexes (--array=1,2,9) is no range: MAX − MIN then
+		// differs from (COUNT − 1) × STEP.
+		if count < 1 || hi-lo != (count-1)*step || id < lo || (id-lo)%step != 0 || (id-lo)/step >= count {
 			return 0, 0, usagef("--shard auto: SLURM_ARRAY_TASK_ID=%d is not one of the %d tasks from %d in steps of %d; "+
 				"submit the array as one range (--array=0-%d)", id, count, lo, step, max(count-1, 0))
 		}

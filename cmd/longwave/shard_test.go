@@ -76,6 +76,11 @@ func TestParseShard(t *testing.T) {
 		{"auto", 0, env("SLURM_ARRAY_TASK_ID", "4", "SLURM_ARRAY_TASK_COUNT", "4", "SLURM_ARRAY_TASK_MIN", "0"), 0, 0,
 			"not one of the 4 tasks"},
 		{"auto", 0, env("SLURM_ARRAY_TASK_ID", "9", "SLURM_ARRAY_TASK_COUNT", "3"), 0, 0, "--array=0-2"},
+		{"auto", 0, env("SLURM_ARRAY_TASK_ID", "6", "SLURM_ARRAY_TASK_COUNT", "4", "SLURM_ARRAY_TASK_MIN", "0",
+			"SLURM_ARRAY_TASK_MAX", "6", "SLURM_ARRAY_TASK_STEP", "2"), 3, 4, ""},
+		// --array=1,2,9: three tasks, but not a range; every task refused.
+		{"auto", 0, env("SLURM_ARRAY_TASK_ID", "2", "SLURM_ARRAY_TASK_COUNT", "3", "SLURM_ARRAY_TASK_MIN", "1",
+			"SLURM_ARRAY_TASK_MAX", "9"), 0, 0, "submit the array as one range"},
 		{"auto", 0, env("SLURM_ARRAY_TASK_ID", "1"), 0, 0, "SLURM_ARRAY_TASK_COUNT is not"},
 		{"auto", 0, env("SLURM_ARRAY_TASK_ID", "one", "SLURM_ARRAY_TASK_COUNT", "4"), 0, 0, `SLURM_ARRAY_TASK_ID="one"`},
 		{"auto", 3, env("SLURM_ARRAY_TASK_ID", "1", "SLURM_ARRAY_TASK_COUNT", "4"), 0, 0, "the SLURM array has 4 tasks"},

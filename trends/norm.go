@@ -123,7 +123,8 @@ type ControlNorm struct {
 	// part of ResidualSD that is measurement error within a visit.
 	VisitSE    float64 `json:"visit_se"`
 	HasVisitSE bool    `json:"has_visit_se"`
-	// Boundary names a variance component estimated at (or next to) zero.
+	// Boundary names a variance component estimated at zero, or a
+	// correlation at ±1 (the edge of the parameter space).
 	Boundary string `json:"boundary,omitempty"`
 	// LogLik is the maximised restricted log likelihood ℓ_R(θ̂).
 	LogLik   float64 `json:"reml_loglik"`
@@ -312,13 +313,16 @@ func FitControlNorm(obs []ControlObservation, opt NormOptions) ControlNorm {
 	}
 	var bound []string
 	if g11 <= boundaryShare*sigma2 {
-		bound = append(bound, "between-person SD of intercepts")
+		bound = append(bound, "between-person SD of intercepts at zero")
 	}
 	if g22 <= boundaryShare*sigma2 {
-		bound = append(bound, "between-person SD of slopes")
+		bound = append(bound, "between-person SD of slopes at zero")
+	}
+	if n.InterceptSD > 0 && n.SlopeSD > 0 && math.Abs(n.Correlation) > 1-1e-6 {
+		bound = append(bound, fmt.Sprintf("correlation of intercepts and slopes at %+.0f", n.Correlation))
 	}
 	if len(bound) > 0 {
-		n.Boundary = strings.Join(bound, " and ") + " estimated at or near zero (boundary of the parameter space)"
+		n.Boundary = strings.Join(bound, "; ") + " (boundary of the parameter space: the controls' data do not separate this component from the visit noise)"
 	}
 
 	// Cov(β̂) = σ̂² (Σ XᵀW⁻¹X)⁻¹ by gonum's Cholesky.
@@ -363,33 +367,54 @@ func distinctAges(obs []ControlObservation) int {
 
 // fitTheta minimises −2ℓ_R over θ from several starts: moment estimates
 // from each person's own least-squares line, the same with no slope
-// variance, and with no intercept variance.
+// variance, and with no intercept variance. With G = σ²ΛΛᵀ the likelihood
+// is flat in Λ's entries next to a zero variance (its derivative there is
+// 0), so an optimiser creeps towards the boundary without reaching it; the
+// boundary models themselves (no slope variance: θ = (λ, 0, 0); no
+// intercept variance: θ = (0, 0, λ); neither: θ = 0) are fitted too, and
+// the θ with the largest ℓ_R of all is kept.
 func fitTheta(st *remlState, byPerson map[string][]ControlObservation, keys []string, centre float64) ([]float64, bool) {
 	f := func(x []float64) float64 {
 		v, _, _, _ := st.eval(x)
 		return v
 	}
-	grad := func(g, x []float64) { centralGradient(g, f, x) }
-	prob := optimize.Problem{Func: f, Grad: grad}
 	var best []float64
 	bestF := math.Inf(1)
-	for _, x0 := range startThetas(byPerson, keys, centre) {
-		x := x0
-		if r, err := optimize.Minimize(prob, x, &optimize.Settings{
-			Converger: &optimize.FunctionConverge{Absolute: 1e-12, Relative: 1e-12, Iterations: 200},
-		}, &optimize.NelderMead{}); err == nil || r != nil {
-			if r != nil && r.F < math.Inf(1) {
-				x = r.X
-			}
-		}
-		if r, _ := optimize.Minimize(prob, x, &optimize.Settings{GradientThreshold: 1e-9}, &optimize.BFGS{}); r != nil && r.F <= f(x) {
-			x = r.X
-		}
+	keep := func(x []float64) {
 		if v := f(x); v < bestF {
 			best, bestF = slices.Clone(x), v
 		}
 	}
+	for _, x0 := range startThetas(byPerson, keys, centre) {
+		keep(minimise(f, x0))
+	}
+	// Boundary models, from the best fit's own values.
+	if best != nil {
+		li := math.Abs(best[0])
+		ls := math.Hypot(best[1], best[2])
+		x := minimise(func(y []float64) float64 { return f([]float64{y[0], 0, 0}) }, []float64{math.Max(li, 0.1)})
+		keep([]float64{x[0], 0, 0})
+		x = minimise(func(y []float64) float64 { return f([]float64{0, 0, y[0]}) }, []float64{math.Max(ls, 0.01)})
+		keep([]float64{0, 0, x[0]})
+	}
+	keep([]float64{0, 0, 0})
 	return best, best != nil && !math.IsInf(bestF, 0)
+}
+
+// minimise runs gonum's Nelder–Mead from x0 and polishes with BFGS on a
+// central-difference gradient, returning the better point.
+func minimise(f func([]float64) float64, x0 []float64) []float64 {
+	prob := optimize.Problem{Func: f, Grad: func(g, x []float64) { centralGradient(g, f, x) }}
+	x := slices.Clone(x0)
+	if r, _ := optimize.Minimize(prob, x, &optimize.Settings{
+		Converger: &optimize.FunctionConverge{Absolute: 1e-12, Relative: 1e-12, Iterations: 200},
+	}, &optimize.NelderMead{}); r != nil && r.F < f(x) {
+		x = r.X
+	}
+	if r, _ := optimize.Minimize(prob, x, &optimize.Settings{GradientThreshold: 1e-9}, &optimize.BFGS{}); r != nil && r.F < f(x) {
+		x = r.X
+	}
+	return x
 }
 
 // startThetas are the starting points of the optimiser (θ = Λ entries of

@@ -83,8 +83,9 @@ type Estimate struct {
 // N visits, p = 2 fixed effects. Wᵢ⁻¹ and |Wᵢ| come from the 2×2 matrix
 // Mᵢ = I + ΛᵀZᵢᵀZᵢΛ (Woodbury; |Wᵢ| = |Mᵢ|), so a fit needs only each
 // person's ZᵢᵀZᵢ, Zᵢᵀyᵢ and yᵢᵀyᵢ. θ̂ minimises −ℓ_R with gonum's
-// Nelder–Mead and then BFGS (central-difference gradient), from several
-// starts, the best kept. The fixed effects' covariance is σ̂²(Σ XᵢᵀWᵢ⁻¹Xᵢ)⁻¹;
+// Nelder–Mead (derivative-free: the likelihood is flat in Λ next to a zero
+// variance, where gradient steps stall), from several starts and on the
+// boundary models, the best kept (fitTheta). The fixed effects' covariance is σ̂²(Σ XᵢᵀWᵢ⁻¹Xᵢ)⁻¹;
 // their 95 % intervals use t(0.975; persons − 2), the between-person degrees
 // of freedom (conservative against the normal quantile).
 //
@@ -401,17 +402,14 @@ func fitTheta(st *remlState, byPerson map[string][]ControlObservation, keys []st
 	return best, best != nil && !math.IsInf(bestF, 0)
 }
 
-// minimise runs gonum's Nelder–Mead from x0 and polishes with BFGS on a
-// central-difference gradient, returning the better point.
+// minimise runs gonum's Nelder–Mead from x0 until −2ℓ_R changes by less
+// than 1e-11 over 30 iterations, and returns the better of x0 and its end.
 func minimise(f func([]float64) float64, x0 []float64) []float64 {
-	prob := optimize.Problem{Func: f, Grad: func(g, x []float64) { centralGradient(g, f, x) }}
+	prob := optimize.Problem{Func: f}
 	x := slices.Clone(x0)
 	if r, _ := optimize.Minimize(prob, x, &optimize.Settings{
-		Converger: &optimize.FunctionConverge{Absolute: 1e-12, Relative: 1e-12, Iterations: 200},
+		Converger: &optimize.FunctionConverge{Absolute: 1e-11, Relative: 1e-12, Iterations: 30},
 	}, &optimize.NelderMead{}); r != nil && r.F < f(x) {
-		x = r.X
-	}
-	if r, _ := optimize.Minimize(prob, x, &optimize.Settings{GradientThreshold: 1e-9}, &optimize.BFGS{}); r != nil && r.F < f(x) {
 		x = r.X
 	}
 	return x
@@ -490,19 +488,4 @@ func variance(x []float64) float64 {
 		s += (v - m) * (v - m)
 	}
 	return s / float64(len(x)-1)
-}
-
-// centralGradient is the central-difference gradient of f at x with step
-// h = 1e-6·max(1, |xₖ|) (truncation error O(h²), common practice).
-func centralGradient(g []float64, f func([]float64) float64, x []float64) {
-	y := slices.Clone(x)
-	for k := range x {
-		h := 1e-6 * math.Max(1, math.Abs(x[k]))
-		y[k] = x[k] + h
-		fp := f(y)
-		y[k] = x[k] - h
-		fm := f(y)
-		y[k] = x[k]
-		g[k] = (fp - fm) / (2 * h)
-	}
 }

@@ -245,3 +245,20 @@ func btoi(b bool) int {
 	}
 	return 0
 }
+
+// BenchmarkFitControlNorm fits one series over the balanced golden cohort
+// (24 persons, 96 visits).
+func BenchmarkFitControlNorm(b *testing.B) {
+	g := loadMixedGolden(b)
+	s := g.Sets[0]
+	obs := make([]ControlObservation, len(s.Value))
+	for i := range obs {
+		obs[i] = ControlObservation{Person: s.Person[i], AgeYears: s.AgeYears[i], Value: s.Value[i]}
+	}
+	b.ReportAllocs()
+	for b.Loop() {
+		if n := FitControlNorm(obs, NormOptions{}); !n.Known {
+			b.Fatal(n.Reason)
+		}
+	}
+}

@@ -232,6 +232,9 @@ func FitControlNorm(obs []ControlObservation, opt NormOptions) ControlNorm {
 	if minimum.PersonsThree <= 0 {
 		minimum.PersonsThree = def.PersonsThree
 	}
+	// Three persons at the least, whatever the minimums: the fixed
+	// effects' t interval has persons − 2 degrees of freedom.
+	minimum.Persons = max(minimum.Persons, 3)
 	n := ControlNorm{Marker: opt.Marker, Region: opt.Region, State: opt.State, Min: minimum, FittedOn: opt.FittedOn, Method: normMethod}
 	byPerson := map[string][]ControlObservation{}
 	var keys []string
@@ -268,7 +271,7 @@ func FitControlNorm(obs []ControlObservation, opt NormOptions) ControlNorm {
 			n.PersonsThree++
 		}
 	}
-	if n.PersonsTwo < minimum.Persons || n.PersonsThree < minimum.PersonsThree {
+	if n.PersonsTwo < minimum.Persons || n.PersonsThree < minimum.PersonsThree || n.Persons < 3 {
 		n.Reason = fmt.Sprintf("only %d control %s with two or more comparable visits (%d with three or more): a norm needs at least %d with two or more and %d with three or more",
 			n.PersonsTwo, plural(n.PersonsTwo, "person", "persons"), n.PersonsThree, minimum.Persons, minimum.PersonsThree)
 		return n

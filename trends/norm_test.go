@@ -262,3 +262,44 @@ func BenchmarkFitControlNorm(b *testing.B) {
 		}
 	}
 }
+
+// TestControlNormHostileInput: degenerate data give a norm that is not
+// Known, or a finite one, never a panic or NaN.
+func TestControlNormHostileInput(t *testing.T) {
+	flat := obsLines(24, func(int) int { return 3 }, 0, 0, func(int, int) float64 { return 0 })
+	huge := obsLines(24, func(int) int { return 3 }, 0.3, -0.02, func(i, j int) float64 { return 1e150 * float64((i+j)%2) })
+	oneVisit := obsLines(40, func(int) int { return 1 }, 0.3, -0.02, func(int, int) float64 { return 0 })
+	sameDay := obsLines(24, func(int) int { return 3 }, 0.3, -0.02, func(int, int) float64 { return 0 })
+	for k := range sameDay {
+		sameDay[k].AgeYears = 70
+	}
+	cases := []struct {
+		name   string
+		obs    []ControlObservation
+		min    NormMinimums
+		reason string
+	}{
+		{"every value equal", flat, NormMinimums{}, "the controls' values have no spread about their lines: no norm"},
+		{"huge values", huge, NormMinimums{}, ""},
+		{"one visit each", oneVisit, NormMinimums{}, "only 0 control persons with two or more comparable visits (0 with three or more): a norm needs at least 20 with two or more and 10 with three or more"},
+		{"every visit at one age", sameDay, NormMinimums{}, "only 0 control persons with two or more comparable visits (0 with three or more): a norm needs at least 20 with two or more and 10 with three or more"},
+		{"two persons, minimums of one", obsLines(2, func(int) int { return 4 }, 0.3, -0.02, func(i, j int) float64 { return 0.1 * float64(j%2) }), NormMinimums{Persons: 1, PersonsThree: 1},
+			"only 2 control persons with two or more comparable visits (2 with three or more): a norm needs at least 3 with two or more and 1 with three or more"},
+	}
+	for _, c := range cases {
+		t.Run(c.name, func(t *testing.T) {
+			n := FitControlNorm(c.obs, NormOptions{Min: c.min})
+			if n.Known {
+				for _, v := range []float64{n.PerYear.Value, n.PerYear.SE, n.SlopeSD, n.ResidualSD, n.Correlation} {
+					if math.IsNaN(v) || math.IsInf(v, 0) {
+						t.Fatalf("known norm with a non-finite figure: %+v", n)
+					}
+				}
+				return
+			}
+			if c.reason != "" && n.Reason != c.reason {
+				t.Errorf("reason %q, want %q", n.Reason, c.reason)
+			}
+		})
+	}
+}

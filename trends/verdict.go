@@ -3,6 +3,7 @@ package trends
 import (
 	"fmt"
 	"math"
+	"slices"
 
 	"longwave/metrics"
 )
@@ -88,8 +89,12 @@ type PatientSlope struct {
 }
 
 // FitPatientSlope fits the patient's slope over comparable visits (any
-// order) with the noise of the control norm when it is Known.
+// order) with the noise of the control norm when it is Known. Visits with a
+// non-finite age or value are left out.
 func FitPatientSlope(visits []PatientVisit, norm ControlNorm) PatientSlope {
+	visits = slices.DeleteFunc(slices.Clone(visits), func(v PatientVisit) bool {
+		return !finiteValue(v.AgeYears) || !finiteValue(v.Value)
+	})
 	p := PatientSlope{N: len(visits)}
 	if p.N < MinVerdictVisits {
 		p.Reason = fmt.Sprintf("%d comparable %s: a verdict needs at least %d", p.N, plural(p.N, "visit", "visits"), MinVerdictVisits)

@@ -4,8 +4,6 @@ import (
 	"fmt"
 	"math"
 	"slices"
-
-	"longwave/metrics"
 )
 
 // The patient's own slope against the clinic's control norm.
@@ -27,7 +25,11 @@ const AdvisoryVerdict = "advisory: a comparison with this clinic's control parti
 
 // WorryingDirection is the direction of change of a marker that clinical EEG
 // reads as slowing or loss of reactivity, DirectionUnknown where neither
-// sign is. Source: common practice (EEG slowing moves the posterior dominant
+// sign is (and for a name that is no marker); the table is the markers'
+// own (markerSpans): down for the PDR frequencies and centre of gravity,
+// alpha reactivity and relative alpha and beta power; up for the
+// eyes-open/closed alpha ratio, theta/alpha, relative delta and theta power
+// and the slowing ratio. Source: common practice (EEG slowing moves the posterior dominant
 // rhythm down and power from alpha and beta to delta and theta); alpha
 // reactivity is lower in mild Alzheimer's disease than in normal elderly
 // (Babiloni et al. 2010, REFERENCES.md section 1, abstract). The aperiodic
@@ -35,12 +37,10 @@ const AdvisoryVerdict = "advisory: a comparison with this clinic's control parti
 // it is established as a sign of disease; the asymmetry is signed (left −
 // right), the fit quality and the drowsiness index describe the recording.
 func WorryingDirection(marker string) Direction {
-	switch marker {
-	case metrics.PDRFrequency, metrics.PDRCentroid, metrics.PDRLeft, metrics.PDRRight,
-		metrics.AlphaReactivity, metrics.RelAlpha, metrics.RelBeta:
-		return DirectionDown
-	case metrics.AlphaRatio, metrics.ThetaAlphaRatio, metrics.RelDelta, metrics.RelTheta, metrics.SlowingRatio:
-		return DirectionUp
+	for _, m := range markerSpans {
+		if m.name == marker {
+			return m.worrying
+		}
 	}
 	return DirectionUnknown
 }

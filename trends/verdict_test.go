@@ -153,18 +153,29 @@ func TestCompareSlopeNoVerdict(t *testing.T) {
 }
 
 // TestWorryingDirection: every marker of package metrics has its sign
-// decided, and only the ones named have none.
+// decided (common practice: slowing moves the PDR down and power from alpha
+// and beta to delta and theta; reactivity falls), and a name that is no
+// marker has none.
 func TestWorryingDirection(t *testing.T) {
-	none := map[string]bool{metrics.PDRAsymmetry: true, metrics.AperiodicExponent: true, metrics.AperiodicOffset: true,
-		metrics.AperiodicR2: true, metrics.FrontalPosteriorAlpha: true, metrics.DrowsinessIndex: true}
-	for _, m := range MarkerNames() {
-		d := WorryingDirection(m)
-		if none[m] != (d == DirectionUnknown) {
-			t.Errorf("%s: worrying direction %s", m, d)
+	want := map[string]Direction{
+		metrics.PDRFrequency: DirectionDown, metrics.PDRCentroid: DirectionDown, metrics.PDRLeft: DirectionDown,
+		metrics.PDRRight: DirectionDown, metrics.PDRAsymmetry: DirectionUnknown, metrics.AlphaReactivity: DirectionDown,
+		metrics.AlphaRatio: DirectionUp, metrics.ThetaAlphaRatio: DirectionUp, metrics.AperiodicExponent: DirectionUnknown,
+		metrics.AperiodicOffset: DirectionUnknown, metrics.AperiodicR2: DirectionUnknown, metrics.RelDelta: DirectionUp,
+		metrics.RelTheta: DirectionUp, metrics.RelAlpha: DirectionDown, metrics.RelBeta: DirectionDown,
+		metrics.SlowingRatio: DirectionUp, metrics.FrontalPosteriorAlpha: DirectionUnknown, metrics.DrowsinessIndex: DirectionUnknown,
+	}
+	names := MarkerNames()
+	if len(names) != len(want) {
+		t.Fatalf("%d markers, the table here has %d", len(names), len(want))
+	}
+	for _, m := range names {
+		if d, ok := want[m]; !ok || WorryingDirection(m) != d {
+			t.Errorf("%s: worrying direction %s, want %s", m, WorryingDirection(m), d)
 		}
 	}
-	if WorryingDirection(metrics.PDRFrequency) != DirectionDown || WorryingDirection(metrics.ThetaAlphaRatio) != DirectionUp {
-		t.Error("PDR must worry downwards, theta/alpha upwards")
+	if d := WorryingDirection("heart_rate"); d != DirectionUnknown {
+		t.Errorf("unknown name: %s", d)
 	}
 }
 

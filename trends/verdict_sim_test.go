@@ -4,6 +4,8 @@ import (
 	"fmt"
 	"math"
 	"math/rand/v2"
+	"os"
+	"path/filepath"
 	"strings"
 	"testing"
 
@@ -233,4 +235,14 @@ func TestVerdictErrorRates(t *testing.T) {
 		b.WriteString("\n")
 	}
 	t.Log("\n" + b.String())
+
+	// The README shows this table under "How sure is a verdict?": it must
+	// not drift from what the code does.
+	readme, err := os.ReadFile(filepath.Join(moduleRoot(t), "README.md"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	if !strings.Contains(string(readme), b.String()) {
+		t.Errorf("README.md's table under \"How sure is a verdict?\" differs from the simulation: paste the table printed by go test ./trends/ -count=1 -run '^TestVerdictErrorRates$' -v")
+	}
 }

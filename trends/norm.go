@@ -85,9 +85,11 @@ type Estimate struct {
 // person's ZᵢᵀZᵢ, Zᵢᵀyᵢ and yᵢᵀyᵢ. θ̂ minimises −ℓ_R with gonum's
 // Nelder–Mead (derivative-free: the likelihood is flat in Λ next to a zero
 // variance, where gradient steps stall), from several starts and on the
-// boundary models, the best kept (fitTheta). The fixed effects' covariance is σ̂²(Σ XᵢᵀWᵢ⁻¹Xᵢ)⁻¹;
-// their 95 % intervals use t(0.975; persons − 2), the between-person degrees
-// of freedom (conservative against the normal quantile).
+// boundary models, the best kept (fitTheta). Values enter less their mean
+// (β₀ is shifted back), so that r(θ) does not cancel digits. The fixed
+// effects' covariance is σ̂²(Σ XᵢᵀWᵢ⁻¹Xᵢ)⁻¹; their 95 % intervals use
+// t(0.975; persons − 2), the between-person degrees of freedom
+// (conservative against the normal quantile).
 //
 // Known is false, with a Reason in words, below the minimums (NormMinimums)
 // or when the fit fails.
@@ -277,6 +279,13 @@ func FitControlNorm(obs []ControlObservation, opt NormOptions) ControlNorm {
 		return n
 	}
 	n.CentreAge /= float64(n.Visits)
+	var mean float64
+	for _, k := range keys {
+		for _, o := range byPerson[k] {
+			mean += o.Value
+		}
+	}
+	mean /= float64(n.Visits)
 	if seAll && n.Visits > 0 {
 		n.HasVisitSE, n.VisitSE = true, math.Sqrt(seSum/float64(n.Visits))
 	}
@@ -284,15 +293,21 @@ func FitControlNorm(obs []ControlObservation, opt NormOptions) ControlNorm {
 	for _, k := range keys {
 		var p personStats
 		for _, o := range byPerson[k] {
-			t := o.AgeYears - n.CentreAge
+			t, y := o.AgeYears-n.CentreAge, o.Value-mean
 			p.n++
 			p.st += t
 			p.stt += t * t
-			p.sy += o.Value
-			p.sty += t * o.Value
-			p.yy += o.Value * o.Value
+			p.sy += y
+			p.sty += t * y
+			p.yy += y * y
 		}
 		st.persons = append(st.persons, p)
+	}
+	if v, _, _, _ := st.eval([]float64{0, 0, 0}); math.IsInf(v, 0) {
+		// At θ = 0 the model is ordinary least squares: no residual there
+		// means the values lie on one line.
+		n.Reason = "the controls' values have no spread about their lines: no norm"
+		return n
 	}
 	theta, ok := fitTheta(&st, byPerson, keys, n.CentreAge)
 	if !ok {
@@ -342,7 +357,7 @@ func FitControlNorm(obs []ControlObservation, opt NormOptions) ControlNorm {
 	}
 	n.DF = n.Persons - 2
 	t := TQuantile975(n.DF)
-	n.Intercept = estimate(beta[0], math.Sqrt(sigma2*inv.At(0, 0)), t)
+	n.Intercept = estimate(mean+beta[0], math.Sqrt(sigma2*inv.At(0, 0)), t)
 	n.PerYear = estimate(beta[1], math.Sqrt(sigma2*inv.At(1, 1)), t)
 	n.Known = true
 	return n

@@ -303,3 +303,28 @@ func TestControlNormHostileInput(t *testing.T) {
 		})
 	}
 }
+
+// TestControlNormShift: adding a constant to every value moves only the
+// intercept (the model's intercept absorbs it). Tolerance 1e-6 relative:
+// the optimiser stops when −2ℓ_R changes by under 1e-11, which leaves the
+// parameters about 1e-8 apart from one start to another.
+func TestControlNormShift(t *testing.T) {
+	g := loadMixedGolden(t)
+	s := g.Sets[1]
+	fit := func(shift float64) ControlNorm {
+		obs := make([]ControlObservation, len(s.Value))
+		for i := range obs {
+			obs[i] = ControlObservation{Person: s.Person[i], AgeYears: s.AgeYears[i], Value: s.Value[i] + shift}
+		}
+		return FitControlNorm(obs, NormOptions{})
+	}
+	a, b := fit(0), fit(1e4)
+	if !a.Known || !b.Known {
+		t.Fatalf("%s / %s", a.Reason, b.Reason)
+	}
+	for _, c := range [][2]float64{{a.Intercept.Value + 1e4, b.Intercept.Value}, {a.PerYear.Value, b.PerYear.Value}, {a.Scale, b.Scale}, {a.Cov[3], b.Cov[3]}} {
+		if rel(c[1], c[0]) > 1e-6 {
+			t.Errorf("shifted fit %v, want %v", c[1], c[0])
+		}
+	}
+}

@@ -8,6 +8,7 @@ import (
 
 	"gonum.org/v1/gonum/mat"
 	"gonum.org/v1/gonum/optimize"
+	"gonum.org/v1/gonum/stat"
 )
 
 // The clinic's controls as a longitudinal norm: a linear mixed-effects model
@@ -459,8 +460,11 @@ func startThetas(byPerson map[string][]ControlObservation, keys []string, centre
 	if dfe > 0 && sse > 0 {
 		s2 = sse / float64(dfe)
 	}
-	vi := math.Max(variance(ints), 1e-3*s2) / s2
-	vs := math.Max(variance(slopes), 1e-3*s2) / s2
+	vi, vs := 1e-3, 1e-3
+	if len(ints) >= 2 {
+		vi = math.Max(stat.Variance(ints, nil), 1e-3*s2) / s2
+		vs = math.Max(stat.Variance(slopes, nil), 1e-3*s2) / s2
+	}
 	return [][]float64{
 		{math.Sqrt(vi), 0, math.Sqrt(vs)},
 		{math.Sqrt(vi), 0, 0},
@@ -469,41 +473,13 @@ func startThetas(byPerson map[string][]ControlObservation, keys []string, centre
 	}
 }
 
-// lineFit is the least-squares line y = a + b·t and its residual sum of squares.
+// lineFit is the least-squares line y = a + b·t (gonum
+// stat.LinearRegression) and its residual sum of squares.
 func lineFit(t, y []float64) (a, b, sse float64) {
-	var mt, my float64
-	for i := range t {
-		mt += t[i]
-		my += y[i]
-	}
-	mt /= float64(len(t))
-	my /= float64(len(t))
-	var sxx, sxy float64
-	for i := range t {
-		sxx += (t[i] - mt) * (t[i] - mt)
-		sxy += (t[i] - mt) * (y[i] - my)
-	}
-	b = sxy / sxx
-	a = my - b*mt
+	a, b = stat.LinearRegression(t, y, nil, false)
 	for i := range t {
 		r := y[i] - a - b*t[i]
 		sse += r * r
 	}
 	return a, b, sse
-}
-
-func variance(x []float64) float64 {
-	if len(x) < 2 {
-		return 0
-	}
-	var m float64
-	for _, v := range x {
-		m += v
-	}
-	m /= float64(len(x))
-	var s float64
-	for _, v := range x {
-		s += (v - m) * (v - m)
-	}
-	return s / float64(len(x)-1)
 }

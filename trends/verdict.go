@@ -4,6 +4,8 @@ import (
 	"fmt"
 	"math"
 	"slices"
+
+	"gonum.org/v1/gonum/stat"
 )
 
 // The patient's own slope against the clinic's control norm.
@@ -124,27 +126,26 @@ func FitPatientSlope(visits []PatientVisit, norm ControlNorm) PatientSlope {
 		}
 		w[j] = 1 / vj
 	}
-	var sw, mt, my float64
+	ages := make([]float64, p.N)
+	values := make([]float64, p.N)
 	for j, v := range visits {
-		sw += w[j]
-		mt += w[j] * v.AgeYears
-		my += w[j] * v.Value
+		ages[j], values[j] = v.AgeYears, v.Value
 	}
-	mt /= sw
-	my /= sw
-	var sxx, sxy float64
-	for j, v := range visits {
-		sxx += w[j] * (v.AgeYears - mt) * (v.AgeYears - mt)
-		sxy += w[j] * (v.AgeYears - mt) * (v.Value - my)
+	mt := stat.Mean(ages, w)
+	var sxx float64
+	for j, t := range ages {
+		sxx += w[j] * (t - mt) * (t - mt)
 	}
 	if !(sxx > 0) || p.LastAge-p.FirstAge < 1/DaysPerYear {
 		p.Reason = "all comparable visits on one date: no slope"
 		return p
 	}
-	p.PerYear = sxy / sxx
+	// Weighted least squares by gonum's stat.LinearRegression.
+	a, b := stat.LinearRegression(ages, values, w, false)
+	p.PerYear = b
 	var q float64
-	for j, v := range visits {
-		r := v.Value - my - p.PerYear*(v.AgeYears-mt)
+	for j, t := range ages {
+		r := values[j] - a - b*t
 		q += w[j] * r * r
 	}
 	p.Phi = q / float64(p.N-2)

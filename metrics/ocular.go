@@ -3,6 +3,7 @@ package metrics
 import (
 	"fmt"
 	"math"
+	"slices"
 
 	"gonum.org/v1/gonum/mat"
 
@@ -44,6 +45,11 @@ type OcularSettings struct {
 	// 0 (no step in the corrected signal).
 	BlinkPadSeconds  float64 `json:"blink_pad_s"`
 	BlinkRampSeconds float64 `json:"blink_ramp_s"`
+	// MaxWindowShare: when the blink windows cover more than this share of
+	// the recording, the frontal poles are not blinking but broken or
+	// swamped (a loose electrode, constant movement), and nothing is
+	// corrected; the artefact rules then judge the windows.
+	MaxWindowShare float64 `json:"max_window_share"`
 }
 
 // defaultOcular returns the correction of settings v2: regression, with
@@ -70,6 +76,7 @@ func defaultOcular() *OcularSettings {
 		BlinkSmoothSeconds: 0.1,
 		BlinkPadSeconds:    0.5,
 		BlinkRampSeconds:   0.25,
+		MaxWindowShare:     0.9,
 	}
 }
 
@@ -82,8 +89,9 @@ type OcularReport struct {
 	// Coefficients[channel] are the fitted propagation factors, one per
 	// predictor (µV per µV).
 	Coefficients map[string][]float64 `json:"coefficients,omitempty"`
-	// Blinks and BlinkSeconds (proxy only): blink windows found and their
-	// total length (weight above 0), s.
+	// Blinks and BlinkSeconds: the eye-event windows found (on the EOG
+	// channels, or blink windows on the proxy) and their total length in
+	// seconds (on the proxy including the flanks).
 	Blinks       int     `json:"blinks"`
 	BlinkSeconds float64 `json:"blink_seconds"`
 	// Reason says why nothing was corrected, when nothing was.
@@ -103,12 +111,20 @@ type OcularReport struct {
 //	b = (R Rᵀ)⁻¹ R xᵀ       (least squares, one b per channel)
 //	x ← x − bᵀ (R − mean R)
 //
-// fitted over all segments (a segment plays the part of an MNE epoch: its
-// own means). The predictors are filtered exactly as the EEG is.
+// where a stretch of samples fitted together plays the part of an MNE
+// epoch (its own means). The predictors are filtered exactly as the EEG is.
 //
 // Predictors. Where the recording has EOG channels (ingest.KindEOG, at the
-// EEG rate, not flat), they are the predictors and the fit runs over the
-// whole recording, as in Gratton et al. and in MNE. Where it has none, the
+// EEG rate, not flat), they are the predictors. The coefficients are fitted
+// on the eye events the EOG shows (eyeEvents on each EOG channel, either
+// sign: blinks and eye movements) and applied to the whole recording — the
+// workflow MNE documents for EOGRegression after Croft RJ, Barry RJ (2000),
+// Removal of ocular artifact from the EEG: a review, Neurophysiol Clin
+// 30(1):5–19 (citation from memory): fit on EOG epochs, apply to the raw
+// data. Fitted on the events, the factors measure the eye's propagation;
+// fitted on a whole blink-free recording they would measure only the brain
+// signal that EOG and EEG share, and subtracting that is harm. A recording
+// whose EOG shows no event is left as it was. Where it has none, the
 // vertical EOG is stood in for by the mean of the frontal poles (Fp1, Fp2),
 // the sites nearest the eyes; MNE's own blink finder takes a frontal EEG
 // channel as the EOG in the same way when a file has no EOG (common
@@ -145,10 +161,34 @@ func (a *analysis) correctOcular(rec *ingest.Recording) error {
 	if o.Method != OcularRegression {
 		return fmt.Errorf("metrics: ocular correction %q: unknown method", o.Method)
 	}
-	targets := a.usedChannels()
+	// Every analysed channel that is not flat is corrected, the ones the
+	// level rule found noisy included: large blinks alone make the frontal
+	// poles "noisy", and the rule is applied again on the corrected signals.
+	var targets []int
+	for c, lv := range a.level {
+		if lv >= a.s.Channel.FlatSDMicrovolts {
+			targets = append(targets, c)
+		}
+	}
+	defer a.remarkBadChannels()
 	if eog, names := a.eogPredictors(rec); len(eog) > 0 {
-		a.ocular = &OcularReport{Method: "eog regression", Predictors: names}
-		a.ocular.Coefficients = named(a.names, targets, regressOut(a.data, targets, eog, a.segs, true))
+		// Fit on the eye events the EOG shows (MNE: EOG epochs), apply to
+		// the whole recording (MNE: apply to the raw data).
+		var events []ingest.Segment
+		for _, x := range eog {
+			events = unionEvents(events, eyeEvents(x, a.segs, a.fs, o, true))
+		}
+		a.ocular = &OcularReport{Method: "eog regression", Predictors: names, Blinks: len(events)}
+		for _, w := range events {
+			a.ocular.BlinkSeconds += float64(w.Count) / a.fs
+		}
+		if len(events) == 0 {
+			a.ocular.Reason = "no blink or eye movement found on the EOG channels"
+			return nil
+		}
+		coef := fitRegression(a.data, targets, eog, events, true)
+		applyRegression(a.data, targets, eog, coef, a.segs, true)
+		a.ocular.Coefficients = named(a.names, targets, coef)
 		return nil
 	}
 	var proxy []int
@@ -162,17 +202,38 @@ func (a *analysis) correctOcular(rec *ingest.Recording) error {
 		}
 	}
 	if len(proxy) == 0 {
-		a.ocular = &OcularReport{Method: "none", Reason: "no EOG channel and no good frontal-pole channel to stand for one"}
+		a.ocular = &OcularReport{Method: "none", Reason: "no EOG channel and no frontal-pole channel with signal to stand for one"}
 		return nil
 	}
 	gated, blinks, seconds := blinkProxy(a.data, proxy, a.segs, a.fs, o)
 	a.ocular = &OcularReport{Method: "frontal-pole regression", Predictors: names, Blinks: blinks, BlinkSeconds: seconds}
-	if blinks == 0 {
+	total := float64(a.n) / a.fs
+	switch {
+	case blinks == 0:
 		a.ocular.Reason = "no blink found on the frontal poles"
+		return nil
+	case seconds > o.MaxWindowShare*total:
+		a.ocular.Reason = fmt.Sprintf("the frontal poles stay above the blink threshold for %.0f %% of the recording (limit %.0f %%): not blinks, left to the artefact rules",
+			100*seconds/total, 100*o.MaxWindowShare)
 		return nil
 	}
 	a.ocular.Coefficients = named(a.names, targets, regressOut(a.data, targets, [][]float64{gated}, a.segs, false))
 	return nil
+}
+
+// remarkBadChannels measures the analysed channels' levels again after the
+// correction and applies the channel rules afresh (the analysed channels'
+// only bad reasons so far are those rules'), so that a frontal pole that
+// was "noisy" only from blinks rejoins the reference, and one that is noisy
+// for another reason stays out.
+func (a *analysis) remarkBadChannels() {
+	win := max(2, int(math.Round(a.s.Channel.WindowSeconds*a.fs)))
+	for c, name := range a.names {
+		delete(a.badReason, name)
+		a.level[c] = windowLevel(a.data[c], a.segs, win)
+	}
+	a.bad = nil
+	a.markBadChannels()
 }
 
 func named(names []string, idx []int, coef [][]float64) map[string][]float64 {
@@ -237,35 +298,33 @@ func (a *analysis) filterCopy(x []float32) []float32 {
 	return out
 }
 
-// regressOut fits and removes the predictors refs from the channels
-// data[targets[i]] by least squares over the segments segs, and returns the
-// coefficients, coef[i][k] for target i and predictor k:
+// regressOut fits the predictors refs to the channels data[targets[i]] by
+// least squares over the segments segs and removes them there
+// (fitRegression, then applyRegression on the same segments); it returns the
+// coefficients.
+func regressOut(data [][]float32, targets []int, refs [][]float64, segs []ingest.Segment, centre bool) [][]float64 {
+	coef := fitRegression(data, targets, refs, segs, centre)
+	applyRegression(data, targets, refs, coef, segs, centre)
+	return coef
+}
+
+// fitRegression returns the least-squares coefficients of the predictors
+// refs for the channels data[targets[i]] over the samples of segs,
+// coef[i][k] for target i and predictor k:
 //
-//	b = (R Rᵀ)⁻¹ R xᵀ,   x ← x − bᵀ R
+//	b = (R Rᵀ)⁻¹ R xᵀ
 //
 // with every signal centred over each segment when centre is true (as MNE's
-// EOGRegression centres each epoch; x itself keeps its mean), and as they
-// are when it is false (a regression through the origin, for the gated
-// proxy, which is zero outside blink windows and must leave those samples
-// untouched; the signals are high-passed, so their means are near 0).
-//
-// A singular R Rᵀ (a predictor that is zero or a copy of another) gives no
-// correction: the coefficients are 0.
-func regressOut(data [][]float32, targets []int, refs [][]float64, segs []ingest.Segment, centre bool) [][]float64 {
+// EOGRegression centres each epoch), and as they are when it is false (a
+// regression through the origin, for the gated proxy, which is zero outside
+// blink windows; the signals are high-passed, so their means are near 0). A
+// singular R Rᵀ (a predictor that is zero over segs, or a copy of another)
+// gives coefficients 0: no correction.
+func fitRegression(data [][]float32, targets []int, refs [][]float64, segs []ingest.Segment, centre bool) [][]float64 {
 	k := len(refs)
 	centred := make([][]float64, k)
 	for j, r := range refs {
-		centred[j] = make([]float64, len(r))
-		for _, g := range segs {
-			seg := r[g.First : g.First+g.Count]
-			m := 0.0
-			if centre {
-				m = mean(seg)
-			}
-			for t, v := range seg {
-				centred[j][g.First+t] = v - m
-			}
-		}
+		centred[j] = centredCopy(r, segs, centre)
 	}
 	cov := mat.NewSymDense(k, nil)
 	for i := 0; i < k; i++ {
@@ -277,6 +336,7 @@ func regressOut(data [][]float32, targets []int, refs [][]float64, segs []ingest
 	ok := chol.Factorize(cov)
 	coef := make([][]float64, len(targets))
 	x := make([]float64, 0)
+	rhs := mat.NewVecDense(k, nil)
 	for i, c := range targets {
 		coef[i] = make([]float64, k)
 		if !ok {
@@ -286,17 +346,7 @@ func regressOut(data [][]float32, targets []int, refs [][]float64, segs []ingest
 		for _, v := range data[c] {
 			x = append(x, float64(v))
 		}
-		for _, g := range segs {
-			if !centre {
-				break
-			}
-			seg := x[g.First : g.First+g.Count]
-			m := mean(seg)
-			for t := range seg {
-				seg[t] -= m
-			}
-		}
-		rhs := mat.NewVecDense(k, nil)
+		x = centredCopy(x, segs, centre)
 		for j := 0; j < k; j++ {
 			rhs.SetVec(j, dotSegs(centred[j], x, segs))
 		}
@@ -307,18 +357,48 @@ func regressOut(data [][]float32, targets []int, refs [][]float64, segs []ingest
 		for j := 0; j < k; j++ {
 			coef[i][j] = b.AtVec(j)
 		}
+	}
+	return coef
+}
+
+// applyRegression removes the fitted predictors from the targets over the
+// samples of segs: x ← x − bᵀ (R − mean R), the predictors centred over each
+// segment when centre is true (MNE's EOGRegression.apply; x keeps its own
+// mean), as they are otherwise.
+func applyRegression(data [][]float32, targets []int, refs [][]float64, coef [][]float64, segs []ingest.Segment, centre bool) {
+	centred := make([][]float64, len(refs))
+	for j, r := range refs {
+		centred[j] = centredCopy(r, segs, centre)
+	}
+	for i, c := range targets {
 		d := data[c]
 		for _, g := range segs {
 			for t := g.First; t < g.First+g.Count; t++ {
 				v := float64(d[t])
-				for j := 0; j < k; j++ {
+				for j := range centred {
 					v -= coef[i][j] * centred[j][t]
 				}
 				d[t] = float32(v)
 			}
 		}
 	}
-	return coef
+}
+
+// centredCopy returns a copy of x with each segment's mean removed inside
+// the segment (when centre is true); samples outside every segment are 0.
+func centredCopy(x []float64, segs []ingest.Segment, centre bool) []float64 {
+	out := make([]float64, len(x))
+	for _, g := range segs {
+		seg := x[g.First : g.First+g.Count]
+		m := 0.0
+		if centre {
+			m = mean(seg)
+		}
+		for t, v := range seg {
+			out[g.First+t] = v - m
+		}
+	}
+	return out
 }
 
 func mean(x []float64) float64 {
@@ -342,15 +422,93 @@ func dotSegs(a, b []float64, segs []ingest.Segment) float64 {
 	return s
 }
 
+// eyeEvents returns the eye-event windows of signal x (µV, analysis rate):
+// with y = x smoothed by a centred moving average of BlinkSmoothSeconds
+// (inside each segment), |y − median y| when absolute is true (an EOG
+// derivation's sign depends on its montage) or y − median y when it is false
+// (blinks are positive at the frontal poles), the threshold θ =
+// max(BlinkMinMicrovolts, BlinkRobustSD · 1.4826 · MAD(y)) over the whole
+// recording, and every run above θ widened by BlinkPadSeconds on both sides,
+// clipped to its segment, overlapping windows merged. The windows are
+// sorted.
+func eyeEvents(x []float64, segs []ingest.Segment, fs float64, o *OcularSettings, absolute bool) []ingest.Segment {
+	half := max(0, int(math.Round(o.BlinkSmoothSeconds*fs/2)))
+	y := make([]float64, len(x))
+	var inSegs []float64
+	for _, g := range segs {
+		// running sum: y[t] = mean of x over [t−half, t+half] ∩ segment
+		end := g.First + g.Count
+		sum, lo, hi := 0.0, g.First, g.First
+		for t := g.First; t < end; t++ {
+			for hi < min(end, t+half+1) {
+				sum += x[hi]
+				hi++
+			}
+			for lo < t-half {
+				sum -= x[lo]
+				lo++
+			}
+			y[t] = sum / float64(hi-lo)
+		}
+		inSegs = append(inSegs, y[g.First:end]...)
+	}
+	med := median(inSegs)
+	for i, v := range inSegs {
+		inSegs[i] = math.Abs(v - med)
+	}
+	theta := math.Max(o.BlinkMinMicrovolts, o.BlinkRobustSD*1.4826*median(inSegs))
+	above := func(t int) bool {
+		if absolute {
+			return math.Abs(y[t]-med) > theta
+		}
+		return y[t]-med > theta
+	}
+	pad := int(math.Round(o.BlinkPadSeconds * fs))
+	var out []ingest.Segment
+	for _, g := range segs {
+		end := g.First + g.Count
+		for t := g.First; t < end; {
+			if !above(t) {
+				t++
+				continue
+			}
+			u := t
+			for u < end && above(u) {
+				u++
+			}
+			a, b := max(g.First, t-pad), min(end, u+pad)
+			if n := len(out); n > 0 && out[n-1].First+out[n-1].Count >= a {
+				out[n-1].Count = b - out[n-1].First
+			} else {
+				out = append(out, ingest.Segment{First: a, Count: b - a})
+			}
+			t = u
+		}
+	}
+	return out
+}
+
+// unionEvents merges two sorted window lists.
+func unionEvents(a, b []ingest.Segment) []ingest.Segment {
+	all := append(append([]ingest.Segment(nil), a...), b...)
+	slices.SortFunc(all, func(x, y ingest.Segment) int { return x.First - y.First })
+	var out []ingest.Segment
+	for _, w := range all {
+		if n := len(out); n > 0 && out[n-1].First+out[n-1].Count >= w.First {
+			out[n-1].Count = max(out[n-1].Count, w.First+w.Count-out[n-1].First)
+			continue
+		}
+		out = append(out, w)
+	}
+	return out
+}
+
 // blinkProxy builds the gated frontal-pole proxy: p = mean of the proxy
-// channels; s = p smoothed by a centred moving average of
-// BlinkSmoothSeconds; the threshold θ = max(BlinkMinMicrovolts,
-// BlinkRobustSD · 1.4826 · MAD(s)) over the whole recording; every run of
-// s > θ, widened by BlinkPadSeconds and given raised-cosine flanks of
-// BlinkRampSeconds, is a blink window of weight w(t) (1 inside, falling to
-// 0 over the flank; overlapping windows take the larger weight; windows
-// stop at segment edges). It returns w·p, the number of windows (after
-// merging) and their total length in seconds (w > 0).
+// channels; its blink windows (eyeEvents, positive deflections) get weight
+// 1, with raised-cosine flanks of BlinkRampSeconds beyond them falling to 0
+// (inside the segment; overlapping flanks take the larger weight); the
+// gated proxy is w·p. It returns w·p, the number of windows and their total
+// length in seconds (w > 0).
 func blinkProxy(data [][]float32, proxy []int, segs []ingest.Segment, fs float64, o *OcularSettings) ([]float64, int, float64) {
 	n := len(data[proxy[0]])
 	p := make([]float64, n)
@@ -359,62 +517,36 @@ func blinkProxy(data [][]float32, proxy []int, segs []ingest.Segment, fs float64
 			p[t] += float64(v) / float64(len(proxy))
 		}
 	}
-	half := max(0, int(math.Round(o.BlinkSmoothSeconds*fs/2)))
-	s := make([]float64, n)
-	var inSegs []float64
-	for _, g := range segs {
-		for t := g.First; t < g.First+g.Count; t++ {
-			lo, hi := max(g.First, t-half), min(g.First+g.Count, t+half+1)
-			s[t] = mean(p[lo:hi])
-		}
-		inSegs = append(inSegs, s[g.First:g.First+g.Count]...)
-	}
-	med := median(inSegs)
-	for i, v := range inSegs {
-		inSegs[i] = math.Abs(v - med)
-	}
-	theta := math.Max(o.BlinkMinMicrovolts, o.BlinkRobustSD*1.4826*median(inSegs))
-
+	wins := eyeEvents(p, segs, fs, o, false)
 	w := make([]float64, n)
-	pad := int(math.Round(o.BlinkPadSeconds * fs))
 	ramp := int(math.Round(o.BlinkRampSeconds * fs))
-	for _, g := range segs {
-		end := g.First + g.Count
-		for t := g.First; t < end; {
-			if s[t] <= theta {
-				t++
-				continue
+	for _, win := range wins {
+		var g ingest.Segment
+		for _, s := range segs {
+			if win.First >= s.First && win.First < s.First+s.Count {
+				g = s
 			}
-			u := t
-			for u < end && s[u] > theta {
-				u++
+		}
+		a, b := win.First, win.First+win.Count
+		for i := a; i < b; i++ {
+			w[i] = 1
+		}
+		for j := 1; j <= ramp; j++ {
+			v := 0.5 * (1 + math.Cos(math.Pi*float64(j)/float64(ramp+1)))
+			if i := a - j; i >= g.First {
+				w[i] = math.Max(w[i], v)
 			}
-			a, b := max(g.First, t-pad), min(end, u+pad)
-			for i := a; i < b; i++ {
-				w[i] = 1
+			if i := b - 1 + j; i < g.First+g.Count {
+				w[i] = math.Max(w[i], v)
 			}
-			for j := 1; j <= ramp; j++ {
-				// raised cosine from 1 (next to the pad) to 0 (past the flank)
-				v := 0.5 * (1 + math.Cos(math.Pi*float64(j)/float64(ramp+1)))
-				if i := a - j; i >= g.First {
-					w[i] = math.Max(w[i], v)
-				}
-				if i := b - 1 + j; i < end {
-					w[i] = math.Max(w[i], v)
-				}
-			}
-			t = u
 		}
 	}
-	windows, kept := 0, 0
+	kept := 0
 	for t := range w {
 		if w[t] > 0 {
 			kept++
-			if t == 0 || w[t-1] == 0 {
-				windows++
-			}
 		}
 		p[t] *= w[t]
 	}
-	return p, windows, float64(kept) / fs
+	return p, len(wins), float64(kept) / fs
 }

@@ -37,17 +37,9 @@ const (
 type fooofGolden struct {
 	Meta     map[string]string `json:"meta"`
 	Settings []struct {
-		Name     string `json:"name"`
-		Settings struct {
-			FreqLo        float64 `json:"freq_lo"`
-			FreqHi        float64 `json:"freq_hi"`
-			PeakWidthMin  float64 `json:"peak_width_min"`
-			PeakWidthMax  float64 `json:"peak_width_max"`
-			PeakThreshold float64 `json:"peak_threshold"`
-			MinPeakHeight float64 `json:"min_peak_height"`
-			MaxPeaks      int     `json:"max_peaks"`
-		} `json:"settings"`
-		Cases []struct {
+		Name     string             `json:"name"`
+		Settings goldenSpecSettings `json:"settings"`
+		Cases    []struct {
 			Spectrum  int          `json:"spectrum"`
 			Offset    float64      `json:"offset"`
 			Exponent  float64      `json:"exponent"`
@@ -67,9 +59,7 @@ func TestFitSpectrumMatchesFooof(t *testing.T) {
 		t.Fatalf("fooof.json holds %d settings, want 2", len(g.Settings))
 	}
 	for k, set := range g.Settings {
-		st := set.Settings
-		s := SpecParamSettings{FreqLo: st.FreqLo, FreqHi: st.FreqHi, PeakWidthMin: st.PeakWidthMin, PeakWidthMax: st.PeakWidthMax,
-			PeakThreshold: st.PeakThreshold, MinPeakHeight: st.MinPeakHeight, MaxPeaks: st.MaxPeaks}
+		s := set.Settings.params()
 		worst := map[string]float64{}
 		samePeaks := 0
 		for _, c := range set.Cases {

@@ -129,20 +129,8 @@ func blinkFreeCases() []struct {
 			s.AlphaHz, s.MuscleBurstsPerMinute = hz, 2
 			add(fmt.Sprintf("pdr%.1f/seed%d", hz, seed), s)
 		}
+		add(fmt.Sprintf("attenuation0.6/seed%d", seed), attenuationSpec(int(seed), 0.6))
 		s := synth.Default()
-		s.Seed = 7000 + 10*seed + 6
-		s.Duration = 240
-		s.Periods = nil
-		for b := 0; b < 8; b++ {
-			st := ingest.EyesClosed
-			if b%2 == 1 {
-				st = ingest.EyesOpen
-			}
-			s.Periods = append(s.Periods, ingest.Period{State: st, Start: float64(30 * b), End: float64(30*b + 30)})
-		}
-		s.AlphaPower, s.AlphaOpenAttenuation, s.MuscleBurstsPerMinute = 600, 0.6, 0
-		add(fmt.Sprintf("attenuation0.6/seed%d", seed), s)
-		s = synth.Default()
 		s.Seed = 9000 + 10 + seed
 		s.Duration = 180
 		s.Periods = []ingest.Period{{State: ingest.EyesClosed, Start: 0, End: 180}}

@@ -32,6 +32,30 @@ func difference(a, b *Rendering, ch string) []float64 {
 	return out
 }
 
+// renderBoth renders s, and s changed by drop (an artefact switched off).
+func renderBoth(t *testing.T, s Spec, drop func(*Spec)) (with, without *Rendering) {
+	t.Helper()
+	with, err := Render(s)
+	if err != nil {
+		t.Fatal(err)
+	}
+	drop(&s)
+	without, err = Render(s)
+	if err != nil {
+		t.Fatal(err)
+	}
+	return with, without
+}
+
+// differenceNorm is the Euclidean norm of one channel's difference, µV.
+func differenceNorm(a, b *Rendering, ch string) float64 {
+	e := 0.0
+	for _, v := range difference(a, b, ch) {
+		e += v * v
+	}
+	return math.Sqrt(e)
+}
+
 // bumps splits x into its runs of non-zero samples, as [start, end) pairs.
 func bumps(x []float64) [][2]int {
 	var out [][2]int
@@ -58,16 +82,9 @@ func bumps(x []float64) [][2]int {
 // the model's falling weights towards the back of the head.
 func TestBlinksAreAdditive(t *testing.T) {
 	s := blinkSpec(7)
-	withBlinks, err := Render(s)
-	if err != nil {
-		t.Fatal(err)
-	}
+	withBlinks, without := renderBoth(t, s, func(s *Spec) { s.BlinksPerMinute = 0 })
 	off := s
 	off.BlinksPerMinute = 0
-	without, err := Render(off)
-	if err != nil {
-		t.Fatal(err)
-	}
 	// Off with other amplitude fields is still the same blink-free file.
 	off2 := off
 	off2.BlinkMinUV, off2.BlinkMaxUV = 0, 0
@@ -112,13 +129,6 @@ func TestBlinksAreAdditive(t *testing.T) {
 	}
 	// Outside blinks the two files are identical; the weights fall from the
 	// front to the back.
-	energy := func(ch string) float64 {
-		e := 0.0
-		for _, v := range difference(withBlinks, without, ch) {
-			e += v * v
-		}
-		return math.Sqrt(e)
-	}
 	for _, ch := range s.Channels {
 		d := difference(withBlinks, without, ch)
 		for i, v := range d {
@@ -127,13 +137,13 @@ func TestBlinksAreAdditive(t *testing.T) {
 			}
 		}
 	}
-	ref := energy("Fp1")
+	ref := differenceNorm(withBlinks, without, "Fp1")
 	for _, w := range []struct {
 		ch     string
 		weight float64
 	}{{"Fp2", 1}, {"F7", 0.5}, {"Fz", 0.45}, {"Cz", 0.12}, {"Pz", 0.05}, {"O1", 0.03}} {
 		// Quantisation adds at most half a step per sample to each side.
-		if got := energy(w.ch) / ref; math.Abs(got-w.weight) > 0.01 {
+		if got := differenceNorm(withBlinks, without, w.ch) / ref; math.Abs(got-w.weight) > 0.01 {
 			t.Errorf("%s blink size %.3f of Fp1's, want %.2f", w.ch, got, w.weight)
 		}
 	}
@@ -149,16 +159,7 @@ func TestMuscleBursts(t *testing.T) {
 	s.MuscleBurstsPerMinute = 12
 	s.MuscleMinUV, s.MuscleMaxUV = 20, 40
 	s.MuscleMinSeconds, s.MuscleMaxSeconds = 1, 2
-	with, err := Render(s)
-	if err != nil {
-		t.Fatal(err)
-	}
-	off := s
-	off.MuscleBurstsPerMinute = 0
-	without, err := Render(off)
-	if err != nil {
-		t.Fatal(err)
-	}
+	with, without := renderBoth(t, s, func(s *Spec) { s.MuscleBurstsPerMinute = 0 })
 	t7 := difference(with, without, "T7")
 	runs := bumps(t7)
 	if len(runs) < 4 {
@@ -194,18 +195,11 @@ func TestMuscleBursts(t *testing.T) {
 		t.Errorf("muscle RMS at T7 %.1f µV over the bursts, spec %v–%v µV at the peak", rms, s.MuscleMinUV, s.MuscleMaxUV)
 	}
 	// Weights: F7 0.7, O1 0.2 of T7.
-	rmsOf := func(ch string) float64 {
-		e := 0.0
-		for _, v := range difference(with, without, ch) {
-			e += v * v
-		}
-		return math.Sqrt(e)
-	}
 	for _, w := range []struct {
 		ch     string
 		weight float64
 	}{{"T8", 1}, {"F7", 0.7}, {"O1", 0.2}, {"Pz", 0.1}} {
-		if got := rmsOf(w.ch) / rmsOf("T7"); math.Abs(got-w.weight) > 0.02 {
+		if got := differenceNorm(with, without, w.ch) / differenceNorm(with, without, "T7"); math.Abs(got-w.weight) > 0.02 {
 			t.Errorf("%s burst size %.3f of T7's, want %.2f", w.ch, got, w.weight)
 		}
 	}
@@ -244,26 +238,14 @@ func TestEOGChannels(t *testing.T) {
 
 	s := blinkSpec(11)
 	s.Duration = 30
-	plain, err := Render(s)
-	if err != nil {
-		t.Fatal(err)
-	}
 	s.EOG = []string{"VEOG", "HEOG"}
-	with, err := Render(s)
-	if err != nil {
-		t.Fatal(err)
-	}
+	with, plain := renderBoth(t, s, func(s *Spec) { s.EOG = nil })
 	for _, ch := range s.Channels {
 		if !slices.Equal(plain.Digital[slices.Index(plain.Channels, ch)], with.Digital[slices.Index(with.Channels, ch)]) {
 			t.Errorf("%s changed when EOG channels were added", ch)
 		}
 	}
-	off := s
-	off.BlinksPerMinute = 0
-	without, err := Render(off)
-	if err != nil {
-		t.Fatal(err)
-	}
+	_, without := renderBoth(t, s, func(s *Spec) { s.BlinksPerMinute = 0 })
 	fp1 := difference(with, without, "Fp1")
 	for _, w := range []struct {
 		ch     string

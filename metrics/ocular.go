@@ -186,8 +186,8 @@ func (a *analysis) correctOcular(rec *ingest.Recording) error {
 			a.ocular.Reason = "no blink or eye movement found on the EOG channels"
 			return nil
 		}
-		coef := fitRegression(a.data, targets, eog, events, true)
-		applyRegression(a.data, targets, eog, coef, a.segs, true)
+		coef := fitRegression(a.data, targets, eog, events, true, a.workers)
+		applyRegression(a.data, targets, eog, coef, a.segs, true, a.workers)
 		a.ocular.Coefficients = named(a.names, targets, coef)
 		return nil
 	}
@@ -205,7 +205,11 @@ func (a *analysis) correctOcular(rec *ingest.Recording) error {
 		a.ocular = &OcularReport{Method: "none", Reason: "no EOG channel and no frontal-pole channel with signal to stand for one"}
 		return nil
 	}
-	gated, blinks, seconds := blinkProxy(a.data, proxy, a.segs, a.fs, o)
+	gated, spans := blinkProxy(a.data, proxy, a.segs, a.fs, o)
+	blinks, seconds := len(spans), 0.0
+	for _, w := range spans {
+		seconds += float64(w.Count) / a.fs
+	}
 	a.ocular = &OcularReport{Method: "frontal-pole regression", Predictors: names, Blinks: blinks, BlinkSeconds: seconds}
 	total := float64(a.n) / a.fs
 	switch {
@@ -217,7 +221,7 @@ func (a *analysis) correctOcular(rec *ingest.Recording) error {
 			100*seconds/total, 100*o.MaxWindowShare)
 		return nil
 	}
-	a.ocular.Coefficients = named(a.names, targets, regressOut(a.data, targets, [][]float64{gated}, a.segs, false))
+	a.ocular.Coefficients = named(a.names, targets, regressOut(a.data, targets, [][]float64{gated}, spans, false, a.workers))
 	return nil
 }
 
@@ -249,23 +253,33 @@ func named(names []string, idx []int, coef [][]float64) map[string][]float64 {
 // at another rate, shorter than the EEG, or flat (level below the flat-
 // channel limit) is not used.
 func (a *analysis) eogPredictors(rec *ingest.Recording) ([][]float64, []string) {
-	var out [][]float64
-	var names []string
+	var chans []*ingest.Channel
 	for i := range rec.Channels {
 		ch := &rec.Channels[i]
-		if ch.Kind != ingest.KindEOG || math.Abs(ch.SampleRate-a.fsIn) > 1e-9*a.fsIn || len(ch.Samples) < a.nIn {
-			continue
+		if ch.Kind == ingest.KindEOG && math.Abs(ch.SampleRate-a.fsIn) <= 1e-9*a.fsIn && len(ch.Samples) >= a.nIn {
+			chans = append(chans, ch)
 		}
-		x := a.filterCopy(ch.Samples[:a.nIn])
-		if windowLevel(x, a.segs, max(2, int(math.Round(a.s.Channel.WindowSeconds*a.fs)))) < a.s.Channel.FlatSDMicrovolts {
-			continue
+	}
+	filtered := make([][]float64, len(chans))
+	win := max(2, int(math.Round(a.s.Channel.WindowSeconds*a.fs)))
+	parallel(len(chans), a.workers, func(_, i int) {
+		x := a.filterCopy(chans[i].Samples[:a.nIn])
+		if windowLevel(x, a.segs, win) < a.s.Channel.FlatSDMicrovolts {
+			return
 		}
 		y := make([]float64, len(x))
 		for k, v := range x {
 			y[k] = float64(v)
 		}
-		out = append(out, y)
-		names = append(names, ch.Label)
+		filtered[i] = y
+	})
+	var out [][]float64
+	var names []string
+	for i, y := range filtered {
+		if y != nil {
+			out = append(out, y)
+			names = append(names, chans[i].Label)
+		}
 	}
 	return out, names
 }
@@ -302,9 +316,9 @@ func (a *analysis) filterCopy(x []float32) []float32 {
 // least squares over the segments segs and removes them there
 // (fitRegression, then applyRegression on the same segments); it returns the
 // coefficients.
-func regressOut(data [][]float32, targets []int, refs [][]float64, segs []ingest.Segment, centre bool) [][]float64 {
-	coef := fitRegression(data, targets, refs, segs, centre)
-	applyRegression(data, targets, refs, coef, segs, centre)
+func regressOut(data [][]float32, targets []int, refs [][]float64, segs []ingest.Segment, centre bool, workers int) [][]float64 {
+	coef := fitRegression(data, targets, refs, segs, centre, workers)
+	applyRegression(data, targets, refs, coef, segs, centre, workers)
 	return coef
 }
 
@@ -320,7 +334,7 @@ func regressOut(data [][]float32, targets []int, refs [][]float64, segs []ingest
 // blink windows; the signals are high-passed, so their means are near 0). A
 // singular R Rᵀ (a predictor that is zero over segs, or a copy of another)
 // gives coefficients 0: no correction.
-func fitRegression(data [][]float32, targets []int, refs [][]float64, segs []ingest.Segment, centre bool) [][]float64 {
+func fitRegression(data [][]float32, targets []int, refs [][]float64, segs []ingest.Segment, centre bool, workers int) [][]float64 {
 	k := len(refs)
 	centred := make([][]float64, k)
 	for j, r := range refs {
@@ -332,32 +346,33 @@ func fitRegression(data [][]float32, targets []int, refs [][]float64, segs []ing
 			cov.SetSym(i, j, dotSegs(centred[i], centred[j], segs))
 		}
 	}
-	var chol mat.Cholesky
-	ok := chol.Factorize(cov)
 	coef := make([][]float64, len(targets))
-	x := make([]float64, 0)
-	rhs := mat.NewVecDense(k, nil)
-	for i, c := range targets {
+	for i := range coef {
 		coef[i] = make([]float64, k)
-		if !ok {
-			continue
-		}
-		x = x[:0]
-		for _, v := range data[c] {
-			x = append(x, float64(v))
-		}
-		x = centredCopy(x, segs, centre)
-		for j := 0; j < k; j++ {
-			rhs.SetVec(j, dotSegs(centred[j], x, segs))
-		}
-		var b mat.VecDense
-		if err := chol.SolveVecTo(&b, rhs); err != nil {
-			continue
-		}
-		for j := 0; j < k; j++ {
-			coef[i][j] = b.AtVec(j)
-		}
 	}
+	var chol mat.Cholesky
+	var inv mat.SymDense
+	if !chol.Factorize(cov) || chol.InverseTo(&inv) != nil {
+		return coef
+	}
+	// R xᵀ needs no centring of x: each centred predictor sums to 0 over
+	// each segment, so x's segment means drop out.
+	parallel(len(targets), workers, func(_, i int) {
+		x := data[targets[i]]
+		rhs := make([]float64, k)
+		for j := range rhs {
+			for _, g := range segs {
+				for t := g.First; t < g.First+g.Count; t++ {
+					rhs[j] += centred[j][t] * float64(x[t])
+				}
+			}
+		}
+		for a := 0; a < k; a++ {
+			for b := 0; b < k; b++ {
+				coef[i][a] += inv.At(a, b) * rhs[b]
+			}
+		}
+	})
 	return coef
 }
 
@@ -365,13 +380,13 @@ func fitRegression(data [][]float32, targets []int, refs [][]float64, segs []ing
 // samples of segs: x ← x − bᵀ (R − mean R), the predictors centred over each
 // segment when centre is true (MNE's EOGRegression.apply; x keeps its own
 // mean), as they are otherwise.
-func applyRegression(data [][]float32, targets []int, refs [][]float64, coef [][]float64, segs []ingest.Segment, centre bool) {
+func applyRegression(data [][]float32, targets []int, refs [][]float64, coef [][]float64, segs []ingest.Segment, centre bool, workers int) {
 	centred := make([][]float64, len(refs))
 	for j, r := range refs {
 		centred[j] = centredCopy(r, segs, centre)
 	}
-	for i, c := range targets {
-		d := data[c]
+	parallel(len(targets), workers, func(_, i int) {
+		d := data[targets[i]]
 		for _, g := range segs {
 			for t := g.First; t < g.First+g.Count; t++ {
 				v := float64(d[t])
@@ -381,7 +396,7 @@ func applyRegression(data [][]float32, targets []int, refs [][]float64, coef [][
 				d[t] = float32(v)
 			}
 		}
-	}
+	})
 }
 
 // centredCopy returns a copy of x with each segment's mean removed inside
@@ -399,6 +414,17 @@ func centredCopy(x []float64, segs []ingest.Segment, centre bool) []float64 {
 		}
 	}
 	return out
+}
+
+func mean32(x []float32) float64 {
+	if len(x) == 0 {
+		return 0
+	}
+	s := 0.0
+	for _, v := range x {
+		s += float64(v)
+	}
+	return s / float64(len(x))
 }
 
 func mean(x []float64) float64 {
@@ -428,7 +454,10 @@ func dotSegs(a, b []float64, segs []ingest.Segment) float64 {
 // derivation's sign depends on its montage) or y − median y when it is false
 // (blinks are positive at the frontal poles), the threshold θ =
 // max(BlinkMinMicrovolts, BlinkRobustSD · 1.4826 · MAD(y)) over the whole
-// recording, and every run above θ widened by BlinkPadSeconds on both sides,
+// recording (the median and MAD taken over every h-th smoothed sample, h
+// the smoothing half-width: neighbours closer than that are nearly the same
+// value, and the subsample makes the two order statistics h times cheaper),
+// and every run above θ widened by BlinkPadSeconds on both sides,
 // clipped to its segment, overlapping windows merged. The windows are
 // sorted.
 func eyeEvents(x []float64, segs []ingest.Segment, fs float64, o *OcularSettings, absolute bool) []ingest.Segment {
@@ -450,7 +479,9 @@ func eyeEvents(x []float64, segs []ingest.Segment, fs float64, o *OcularSettings
 			}
 			y[t] = sum / float64(hi-lo)
 		}
-		inSegs = append(inSegs, y[g.First:end]...)
+		for t := g.First; t < end; t += max(1, half) {
+			inSegs = append(inSegs, y[t])
+		}
 	}
 	med := median(inSegs)
 	for i, v := range inSegs {
@@ -507,9 +538,10 @@ func unionEvents(a, b []ingest.Segment) []ingest.Segment {
 // channels; its blink windows (eyeEvents, positive deflections) get weight
 // 1, with raised-cosine flanks of BlinkRampSeconds beyond them falling to 0
 // (inside the segment; overlapping flanks take the larger weight); the
-// gated proxy is w·p. It returns w·p, the number of windows and their total
-// length in seconds (w > 0).
-func blinkProxy(data [][]float32, proxy []int, segs []ingest.Segment, fs float64, o *OcularSettings) ([]float64, int, float64) {
+// gated proxy is w·p. It returns w·p and the stretches where w > 0 (each
+// window with its flanks, overlapping ones merged), sorted: outside them the
+// gated proxy is 0, so a regression on it needs only those samples.
+func blinkProxy(data [][]float32, proxy []int, segs []ingest.Segment, fs float64, o *OcularSettings) ([]float64, []ingest.Segment) {
 	n := len(data[proxy[0]])
 	p := make([]float64, n)
 	for _, c := range proxy {
@@ -541,12 +573,17 @@ func blinkProxy(data [][]float32, proxy []int, segs []ingest.Segment, fs float64
 			}
 		}
 	}
-	kept := 0
+	var spans []ingest.Segment
 	for t := range w {
-		if w[t] > 0 {
-			kept++
-		}
 		p[t] *= w[t]
+		if w[t] == 0 {
+			continue
+		}
+		if n := len(spans); n > 0 && spans[n-1].First+spans[n-1].Count == t {
+			spans[n-1].Count++
+		} else {
+			spans = append(spans, ingest.Segment{First: t, Count: 1})
+		}
 	}
-	return p, len(wins), float64(kept) / fs
+	return p, spans
 }

@@ -1,6 +1,7 @@
 package metrics
 
 import (
+	"bytes"
 	"encoding/json"
 	"errors"
 	"fmt"
@@ -79,7 +80,7 @@ func TestEOGRegressionMatchesMNE(t *testing.T) {
 			for _, s := range c.Segments {
 				segs = append(segs, ingest.Segment{First: s[0], Count: s[1]})
 			}
-			coef := regressOut(data, targets, c.EOG, segs, true)
+			coef := regressOut(data, targets, c.EOG, segs, true, 2)
 			for i := range coef {
 				for k := range coef[i] {
 					want := c.Coef[i][k]
@@ -345,7 +346,11 @@ func TestBlinkWindows(t *testing.T) {
 		blinks = append(blinks, span{a, a + length})
 	}
 	segs := []ingest.Segment{{First: 0, Count: n}}
-	gated, windows, seconds := blinkProxy([][]float32{x}, []int{0}, segs, fs, o)
+	gated, spans := blinkProxy([][]float32{x}, []int{0}, segs, fs, o)
+	windows, seconds := len(spans), 0.0
+	for _, w := range spans {
+		seconds += float64(w.Count) / fs
+	}
 	if windows != len(blinks) {
 		t.Errorf("%d windows for %d separate blinks", windows, len(blinks))
 	}
@@ -369,8 +374,8 @@ func TestBlinkWindows(t *testing.T) {
 	if max := float64(len(blinks)) * (0.4 + 2*(o.BlinkPadSeconds+o.BlinkRampSeconds)); seconds > max {
 		t.Errorf("%.1f s in windows, more than the %.1f s the blinks can explain", seconds, max)
 	}
-	if _, w, _ := blinkProxy([][]float32{noise}, []int{0}, segs, fs, o); w != 0 {
-		t.Errorf("pure 10-µV noise gave %d blink windows", w)
+	if _, w := blinkProxy([][]float32{noise}, []int{0}, segs, fs, o); len(w) != 0 {
+		t.Errorf("pure 10-µV noise gave %d blink windows", len(w))
 	}
 }
 
@@ -393,5 +398,41 @@ func TestOcularWithoutPredictors(t *testing.T) {
 	bad.Ocular.Method = "guess"
 	if _, err := Compute(mustRecording(t, s, ingest.Options{}), bad); err == nil || errors.Is(err, ErrNoChannels) {
 		t.Errorf("unknown method: error %v, want one naming the method", err)
+	}
+}
+
+// BenchmarkOcular times Compute on the 30-minute, 21-channel, 500 Hz
+// yardstick (benchSpec, 6 blinks a minute) without the correction, with the
+// frontal-pole path, and with two EOG channels added (the EOG path), so
+// that the correction's share of the run is the difference.
+func BenchmarkOcular(b *testing.B) {
+	for _, c := range []struct {
+		name string
+		eog  bool
+		s    Settings
+	}{{"v1", false, V1()}, {"proxy", false, withOcular()}, {"eog", true, withOcular()}} {
+		b.Run(c.name, func(b *testing.B) {
+			spec := benchSpec(30)
+			if c.eog {
+				spec.EOG = []string{"VEOG", "HEOG"}
+			}
+			file, err := synth.Bytes(spec)
+			if err != nil {
+				b.Fatal(err)
+			}
+			b.ReportAllocs()
+			b.ResetTimer()
+			for i := 0; i < b.N; i++ {
+				b.StopTimer()
+				rec, err := ingest.Decode(bytes.NewReader(file), int64(len(file)), "bench.edf", ingest.Options{})
+				if err != nil {
+					b.Fatal(err)
+				}
+				b.StartTimer()
+				if _, err := Compute(rec, c.s); err != nil {
+					b.Fatal(err)
+				}
+			}
+		})
 	}
 }

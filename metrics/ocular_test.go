@@ -1,7 +1,6 @@
 package metrics
 
 import (
-	"bytes"
 	"encoding/json"
 	"errors"
 	"fmt"
@@ -420,19 +419,7 @@ func BenchmarkOcular(b *testing.B) {
 			if err != nil {
 				b.Fatal(err)
 			}
-			b.ReportAllocs()
-			b.ResetTimer()
-			for i := 0; i < b.N; i++ {
-				b.StopTimer()
-				rec, err := ingest.Decode(bytes.NewReader(file), int64(len(file)), "bench.edf", ingest.Options{})
-				if err != nil {
-					b.Fatal(err)
-				}
-				b.StartTimer()
-				if _, err := Compute(rec, c.s); err != nil {
-					b.Fatal(err)
-				}
-			}
+			benchComputeFile(b, file, c.s)
 		})
 	}
 }

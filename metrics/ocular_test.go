@@ -423,3 +423,48 @@ func BenchmarkOcular(b *testing.B) {
 		})
 	}
 }
+
+// TestOcularRealEEGMMIDB: the six shared eegmmidb pairs (no EOG channels:
+// the frontal-pole path), V1 against V1 with the correction. The
+// correction finds blinks in every subject; S003's eyes-open epochs, all
+// rejected for amplitude in V1 (frontal blinks; issue 9), are kept; where
+// both give a PDR it moves by less than 0.1 Hz (the ground-truth tolerance:
+// blinks carry no 8–12 Hz rhythm). The clean seconds and the propagation
+// factors are logged (seen at Fz 0.38–0.54, O1 0.004–0.10).
+func TestOcularRealEEGMMIDB(t *testing.T) {
+	sharedData(t, "eegmmidb")
+	for _, sub := range eegmmidbSubjects {
+		t.Run(sub, func(t *testing.T) {
+			load := func() *ingest.Recording {
+				closed := readRun(t, sharedData(t, "eegmmidb", sub+"R02.edf"), ingest.EyesClosed)
+				open := readRun(t, sharedData(t, "eegmmidb", sub+"R01.edf"), ingest.EyesOpen)
+				rec, err := ingest.Combine(closed, open)
+				if err != nil {
+					t.Fatal(err)
+				}
+				return rec
+			}
+			before := mustCompute(t, load())
+			after, err := Compute(load(), withOcular())
+			if err != nil {
+				t.Fatal(err)
+			}
+			o := after.Quality.Ocular
+			if o == nil || o.Method != "frontal-pole regression" || o.Blinks == 0 {
+				t.Fatalf("ocular report %+v, want blinks found on the frontal poles", o)
+			}
+			t.Logf("clean s closed %v → %v, open %v → %v; %d blink windows, %.1f s; propagation Fz %.2f, Cz %.2f, O1 %.3f",
+				before.Quality.CleanSeconds[ingest.EyesClosed], after.Quality.CleanSeconds[ingest.EyesClosed],
+				before.Quality.CleanSeconds[ingest.EyesOpen], after.Quality.CleanSeconds[ingest.EyesOpen],
+				o.Blinks, o.BlinkSeconds, o.Coefficients["Fz"][0], o.Coefficients["Cz"][0], o.Coefficients["O1"][0])
+			if sub == "S003" && after.Quality.CleanSeconds[ingest.EyesOpen] < 40 {
+				t.Errorf("S003 eyes open: %v clean seconds after the correction (V1 %v), want 40 or more",
+					after.Quality.CleanSeconds[ingest.EyesOpen], before.Quality.CleanSeconds[ingest.EyesOpen])
+			}
+			a, b := marker(t, before, PDRFrequency, RegionPosterior, ingest.EyesClosed), marker(t, after, PDRFrequency, RegionPosterior, ingest.EyesClosed)
+			if a.Computable && b.Computable && math.Abs(a.Value-b.Value) > pdrToleranceHz {
+				t.Errorf("PDR %.3f Hz in V1, %.3f Hz corrected", a.Value, b.Value)
+			}
+		})
+	}
+}

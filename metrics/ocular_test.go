@@ -80,10 +80,16 @@ func TestEOGRegressionMatchesMNE(t *testing.T) {
 				segs = append(segs, ingest.Segment{First: s[0], Count: s[1]})
 			}
 			coef := regressOut(data, targets, c.EOG, segs, true, 2)
+			worstCoef, worstClean := 0.0, 0.0
+			defer func() {
+				t.Logf("largest differences from MNE: coefficient %.3g, corrected sample %.2g of the channel's peak", worstCoef, worstClean)
+			}()
 			for i := range coef {
 				for k := range coef[i] {
 					want := c.Coef[i][k]
-					if d := math.Abs(coef[i][k] - want); d > ocularCoefTolerance*math.Max(1, math.Abs(want)) {
+					d := math.Abs(coef[i][k] - want)
+					worstCoef = math.Max(worstCoef, d)
+					if d > ocularCoefTolerance*math.Max(1, math.Abs(want)) {
 						t.Errorf("channel %d, predictor %d: coefficient %.15g, MNE %.15g", i, k, coef[i][k], want)
 					}
 				}
@@ -97,6 +103,7 @@ func TestEOGRegressionMatchesMNE(t *testing.T) {
 				for k, v := range data[i] {
 					worst = math.Max(worst, math.Abs(float64(v)-c.Clean[i][k]))
 				}
+				worstClean = math.Max(worstClean, worst/peak)
 				if worst > ocularCleanTolerance*peak {
 					t.Errorf("channel %d: corrected samples differ from MNE's by up to %.3g µV (peak %.3g µV)", i, worst, peak)
 				}

@@ -76,6 +76,9 @@ func analyse(rec *ingest.Recording, s Settings) (*analysis, error) {
 		return nil, err
 	}
 	a.markBadChannels()
+	if err := a.correctOcular(rec); err != nil {
+		return nil, err
+	}
 	commonAverage(a.data, a.good, a.n, a.workers)
 	a.epochs(rec)
 	a.spectra()
@@ -121,6 +124,7 @@ type analysis struct {
 	psd     map[ingest.EyeState][][]float64
 	primary ingest.EyeState // the state the "closed" markers use
 	fits    map[fitKey]fitResult
+	ocular  *OcularReport // what correctOcular did (nil: not asked for)
 }
 
 func prepare(rec *ingest.Recording, s Settings) (*analysis, error) {
@@ -447,6 +451,7 @@ func (a *analysis) quality() Quality {
 		CleanSeconds:        map[ingest.EyeState]float64{},
 		EpochsTotal:         map[ingest.EyeState]int{},
 		RejectedByRule:      a.rules,
+		Ocular:              a.ocular,
 	}
 	for _, c := range a.usedChannels() {
 		q.UsedChannels = append(q.UsedChannels, a.names[c])

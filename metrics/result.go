@@ -124,6 +124,9 @@ type Quality struct {
 	// Windows are the analysis windows in time order with the decision on
 	// each (kept, or the rule that rejected it).
 	Windows []Window `json:"windows,omitempty"`
+	// Ocular is what the ocular correction did (settings v2 onward; nil
+	// when the settings have none).
+	Ocular *OcularReport `json:"ocular,omitempty"`
 }
 
 // Spectrum is a display spectrum of one state over 1–45 Hz at the Welch

@@ -125,6 +125,9 @@ func NewTraceSource(rec *ingest.Recording, s Settings) (*TraceSource, error) {
 	return t, nil
 }
 
+// Labels are the EEG channels of the average montage, in row order.
+func (t *TraceSource) Labels() []string { return slices.Clone(t.labels) }
+
 // Bytes is the memory the source holds in samples.
 func (t *TraceSource) Bytes() int64 {
 	var n int64

@@ -59,7 +59,7 @@ func withUnit(text, unit string) string {
 
 func markerCell(m metrics.Marker) web.Cell {
 	if !m.Computable {
-		return web.Cell{Text: "–", Note: "not computable: " + m.Reason}
+		return web.Cell{Text: "–", Note: "not computable: " + peopleText(m.Reason)}
 	}
 	return web.Cell{Text: sig(m.Value), Unit: displayUnit(m.Unit)}
 }
@@ -135,7 +135,7 @@ func flagView(f metrics.Flag) web.FlagView {
 	if f.Severity == metrics.NotComparable {
 		sev = "not comparable"
 	}
-	return web.FlagView{Severity: sev, SeverityKey: string(f.Severity), Reason: f.Reason, Source: f.Source, Markers: markersText(f.Markers)}
+	return web.FlagView{Severity: sev, SeverityKey: string(f.Severity), Reason: peopleText(f.Reason), Source: f.Source, Markers: markersText(f.Markers)}
 }
 
 func flagViews(fs []metrics.Flag) []web.FlagView {
@@ -194,7 +194,7 @@ func conditionPairs(c ingest.Conditions, q metrics.Quality, short bool) []web.Pa
 		web.Pair{Label: "Equipment", Value: orNone(c.Equipment)},
 	)
 	for _, ca := range c.Cautions {
-		ps = append(ps, web.Pair{Label: "Decoder note", Value: ca.Text})
+		ps = append(ps, web.Pair{Label: "Decoder note", Value: peopleText(ca.Text)})
 	}
 	return ps
 }

@@ -11,6 +11,10 @@ import (
 
 	"longwave/metrics"
 	"longwave/server/store"
+	"longwave/web"
+
+	"github.com/go-echarts/go-echarts/v2/charts"
+	"github.com/go-echarts/go-echarts/v2/opts"
 )
 
 // The whole recording, page by page: GET /api/v1/visits/{id}/traces
@@ -38,6 +42,36 @@ const (
 	// such visits fit.
 	traceCacheBytes = 400 << 20
 )
+
+// traceHeights are the row heights offered, in µV between neighbouring
+// rows' baselines (the viewer picks the first that holds the page).
+var traceHeights = []float64{20, 50, 100, 200, 500, 1000}
+
+// traceViewer is the visit page's viewer: its source, and a chart frame
+// built with go-echarts (grid, a seconds axis, a hidden µV axis) to which
+// static/traces.js adds each page's rows, windows and eye states.
+func traceViewer(v store.VisitRecord) *web.TraceViewer {
+	c := web.NewChart()
+	c.SetGlobalOptions(
+		charts.WithGridOpts(opts.Grid{Left: "58", Right: "64", Top: "22", Bottom: "30"}),
+		charts.WithTooltipOpts(opts.Tooltip{Show: opts.Bool(false)}),
+		charts.WithXAxisOpts(opts.XAxis{Type: "value", Name: "s", NameGap: 8, SplitNumber: 10, AxisLine: web.AxisLine(),
+			SplitLine: web.GridLines(), AxisLabel: &opts.AxisLabel{Color: web.ColourAxis}}),
+		charts.WithYAxisOpts(opts.YAxis{Type: "value", AxisLine: &opts.AxisLine{Show: opts.Bool(false)},
+			SplitLine: &opts.SplitLine{Show: opts.Bool(false)}, AxisLabel: &opts.AxisLabel{Color: web.ColourAxis, FontSize: 11}}),
+	)
+	return &web.TraceViewer{
+		Source:   "/api/v1/visits/" + itoa(v.Visit.ID) + "/traces",
+		Duration: decimals(v.Conditions.Duration, 0) + " s",
+		Frame:    web.OptionOf(c, web.Extras{}),
+		Colours: web.TraceColours{Trace: web.ColourTraceClose, Bad: web.ColourBadTrace, Kept: web.ColourKept, Rejected: web.ColourRejected, Edge: web.ColourWindowEdge,
+			Closed: web.ColourStateClose, Open: web.ColourStateOpen, Scale: web.ColourScale, Axis: web.ColourAxis},
+		Heights: traceHeights,
+		Montages: []web.TraceChoice{{Value: metrics.MontageAverage, Label: "common average"},
+			{Value: metrics.MontageBipolar, Label: "longitudinal bipolar"}},
+		Signals: []web.TraceChoice{{Value: "1", Label: "as analysed (filtered)"}, {Value: "0", Label: "as recorded"}},
+	}
+}
 
 // traceQuery is a parsed traces request.
 type traceQuery struct {

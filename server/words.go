@@ -1,6 +1,7 @@
 package server
 
 import (
+	"regexp"
 	"strings"
 
 	"longwave/metrics"
@@ -72,4 +73,23 @@ func markersText(keys []string) string {
 		out = append(out, w)
 	}
 	return strings.Join(out, ", ")
+}
+
+// snakeKey finds snake_case keys inside a sentence.
+var snakeKey = regexp.MustCompile(`\b[a-z][a-z0-9]*(?:_[a-z0-9]+)+\b`)
+
+// peopleText rewrites the keys inside a sentence made by another stage (a
+// flag's reason lists the markers it affects by key) into words: marker
+// keys become their names, rule and region keys their words. The stored
+// sentence and the API keep the keys.
+func peopleText(s string) string {
+	return snakeKey.ReplaceAllStringFunc(s, func(k string) string {
+		if t, ok := markerTitles[k]; ok {
+			return strings.ToLower(t[:1]) + t[1:]
+		}
+		if w, ok := ruleWords[k]; ok {
+			return w
+		}
+		return regionName(k)
+	})
 }

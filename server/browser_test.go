@@ -54,6 +54,7 @@ type browserWatch struct {
 	dialogs    []string
 	exceptions []string
 	csp        []string
+	errors     []string // console and browser-log entries of level error
 	requests   int
 }
 
@@ -172,6 +173,8 @@ func TestBrowser(t *testing.T) {
 				w.add(&w.exceptions, text)
 			case strings.Contains(text, "Content Security Policy") || strings.Contains(text, "Refused to"):
 				w.add(&w.csp, text)
+			case m.Type == "error":
+				w.add(&w.errors, text)
 			}
 		}
 	}()
@@ -452,6 +455,7 @@ func TestBrowser(t *testing.T) {
 	// when there is one (so that their silence above means something).
 	w.mu.Lock()
 	seenDialogs, seenExternal := len(w.dialogs), len(w.external)
+	consoleErrors := append([]string(nil), w.errors...) // the probes below log errors of their own
 	w.mu.Unlock()
 	must("dialog probe", chromedp.Do(ctx, chromedp.Evaluate[chromedp.Void](`setTimeout(() => alert('probe'), 0)`), chromedp.Sleep(500*time.Millisecond)))
 	// 192.0.2.1 is TEST-NET-1 (RFC 5737): never a real host.
@@ -470,7 +474,7 @@ func TestBrowser(t *testing.T) {
 	for _, list := range []struct {
 		name  string
 		items []string
-	}{{"request to another host", w.external}, {"dialog", w.dialogs}, {"uncaught exception", w.exceptions}, {"CSP violation", w.csp}} {
+	}{{"request to another host", w.external}, {"dialog", w.dialogs}, {"uncaught exception", w.exceptions}, {"CSP violation", w.csp}, {"console error", consoleErrors}} {
 		for _, it := range list.items {
 			t.Errorf("%s: %s", list.name, it)
 		}

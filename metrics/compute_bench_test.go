@@ -45,16 +45,23 @@ func benchFile(tb testing.TB, minutes float64) []byte {
 	return b
 }
 
+// decodeBench decodes a benchmark file.
+func decodeBench(tb testing.TB, file []byte) *ingest.Recording {
+	tb.Helper()
+	rec, err := ingest.Decode(bytes.NewReader(file), int64(len(file)), "bench.edf", ingest.Options{})
+	if err != nil {
+		tb.Fatal(err)
+	}
+	return rec
+}
+
 func benchCompute(b *testing.B, minutes float64) {
 	file := benchFile(b, minutes)
 	b.ReportAllocs()
 	b.ResetTimer()
 	for i := 0; i < b.N; i++ {
 		b.StopTimer()
-		rec, err := ingest.Decode(bytes.NewReader(file), int64(len(file)), "bench.edf", ingest.Options{})
-		if err != nil {
-			b.Fatal(err)
-		}
+		rec := decodeBench(b, file)
 		b.StartTimer()
 		if _, err := Compute(rec, V1()); err != nil {
 			b.Fatal(err)

@@ -1,7 +1,6 @@
 package metrics
 
 import (
-	"bytes"
 	"errors"
 	"math"
 	"slices"
@@ -252,12 +251,7 @@ func TestTracePageErrors(t *testing.T) {
 // BenchmarkTracePage pages through the yardstick recording (30 min, 21
 // channels, 500 Hz): 10 s pages, each montage and kind in turn.
 func BenchmarkTracePage(b *testing.B) {
-	file := benchFile(b, 30)
-	rec, err := ingest.Decode(bytes.NewReader(file), int64(len(file)), "bench.edf", ingest.Options{})
-	if err != nil {
-		b.Fatal(err)
-	}
-	ts, err := NewTraceSource(rec, V1())
+	ts, err := NewTraceSource(decodeBench(b, benchFile(b, 30)), V1())
 	if err != nil {
 		b.Fatal(err)
 	}
@@ -276,10 +270,7 @@ func BenchmarkNewTraceSource(b *testing.B) {
 	file := benchFile(b, 30)
 	for i := 0; i < b.N; i++ {
 		b.StopTimer()
-		rec, err := ingest.Decode(bytes.NewReader(file), int64(len(file)), "bench.edf", ingest.Options{})
-		if err != nil {
-			b.Fatal(err)
-		}
+		rec := decodeBench(b, file)
 		b.StartTimer()
 		if _, err := NewTraceSource(rec, V1()); err != nil {
 			b.Fatal(err)

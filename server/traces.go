@@ -3,6 +3,7 @@ package server
 import (
 	"context"
 	"errors"
+	"io/fs"
 	"math"
 	"net/http"
 	"net/url"
@@ -208,6 +209,10 @@ func (s *Server) apiVisitTraces(w http.ResponseWriter, r *http.Request) {
 		return
 	}
 	src, err := s.traces.get(ctx, v, s.traceBuilder(v))
+	if errors.Is(err, fs.ErrNotExist) {
+		s.fail(w, r, &appError{status: http.StatusNotFound, msg: "the recording file of this visit is not in the data folder", cause: err})
+		return
+	}
 	if err != nil {
 		s.fail(w, r, err)
 		return

@@ -183,6 +183,29 @@ func TestTracesAPIRefuses(t *testing.T) {
 	}
 }
 
+// TestTracesMissingFile: a visit whose stored file has gone from the data
+// folder answers 404 with the reason, not an internal error.
+func TestTracesMissingFile(t *testing.T) {
+	e := newEnv(t, "", Config{})
+	out := e.ingestVisit(visitSpec{code: "LW-0102", date: "2024-05-06", birthYear: 1949})
+	v, err := e.st.Visit(context.Background(), out.VisitID)
+	if err != nil || len(v.Recordings) != 1 {
+		t.Fatalf("visit: %v, %d recordings", err, len(v.Recordings))
+	}
+	path, err := e.st.StoredRecordingPath(context.Background(), v.Recordings[0].SHA256)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if err := os.Remove(path); err != nil {
+		t.Fatal(err)
+	}
+	c := e.signedIn(clinicianName)
+	status, body, _ := c.get("/api/v1/visits/" + itoa(out.VisitID) + "/traces")
+	if status != http.StatusNotFound || !strings.Contains(body, "not in the data folder") {
+		t.Errorf("missing file: %d %s, want 404 saying the file is not in the data folder", status, body)
+	}
+}
+
 // TestTracesHostileLabels: the hostile fixture's channel labels reach the
 // answer only as escaped JSON text.
 func TestTracesHostileLabels(t *testing.T) {

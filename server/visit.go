@@ -123,7 +123,7 @@ func (s *Server) visitPage(w http.ResponseWriter, r *http.Request) {
 		page.Markers = append(page.Markers, web.MarkerRow{Name: markerTitle(m.Name), Region: regionName(m.Region), State: stateName(m.State), Value: markerCell(m)})
 	}
 	if len(v.Recordings) > 0 {
-		page.Traces = traceViewer(v)
+		page.Traces = traceViewer(v, s.visitSettings(v))
 	}
 	if d == nil {
 		page.NoDisplay = "No spectra or traces are stored for this visit."

@@ -207,6 +207,7 @@ func (*VisitPage) template() string { return "visit.html" }
 type TraceViewer struct {
 	Source   string        `json:"source"` // the traces API of the visit
 	Duration string        `json:"-"`      // "150 s", for people
+	Unshaded string        `json:"-"`      // what lies in no window, for people
 	Frame    Option        `json:"frame"`
 	Colours  TraceColours  `json:"colours"`
 	Heights  []float64     `json:"heights"` // µV per row

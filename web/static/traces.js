@@ -102,16 +102,36 @@
       return (Math.round(v * 10) / 10).toString();
     }
 
+    // slots places the rows from the top, counting in rows: in the bipolar
+    // montage a chain starts where a row does not begin at the electrode
+    // the row above ends at, and a chain after the first starts one row
+    // lower (an empty row between chains).
+    function slots(page) {
+      var out = [];
+      var slot = 0;
+      var prevEnd = null;
+      page.channels.forEach(function (ch) {
+        var parts = ch.label.split('–');
+        if (page.montage === 'bipolar' && prevEnd !== null && parts[0] !== prevEnd) {
+          slot++;
+        }
+        prevEnd = parts.length === 2 ? parts[1] : null;
+        out.push(slot++);
+      });
+      return out;
+    }
+
     function draw(page) {
       var h = state.height;
-      var n = page.channels.length;
+      var at = slots(page);
+      var n = at.length ? at[at.length - 1] + 1 : 0; // rows including the gaps
       var end = page.from + page.seconds;
       var top = (n - 0.4) * h; // the eye-state band lies above the first row
       var band = 0.45 * h;
       var labels = {};
       var series = [];
       page.channels.forEach(function (ch, k) {
-        var off = (n - 1 - k) * h;
+        var off = (n - 1 - at[k]) * h;
         labels[Math.round(off * 1000)] = ch.label;
         var data = new Array(ch.samples.length);
         for (var i = 0; i < ch.samples.length; i++) {
@@ -194,7 +214,7 @@
       box.setAttribute('data-from', String(page.from));
       box.setAttribute('data-montage', page.montage);
       box.setAttribute('data-filtered', page.filtered ? '1' : '0');
-      box.setAttribute('data-rows', String(n));
+      box.setAttribute('data-rows', String(page.channels.length));
       box.removeAttribute('data-loading');
     }
 

@@ -64,6 +64,7 @@ func traceViewer(v store.VisitRecord, set metrics.Settings) *web.TraceViewer {
 	return &web.TraceViewer{
 		Source:   "/api/v1/visits/" + itoa(v.Visit.ID) + "/traces",
 		Duration: decimals(v.Conditions.Duration, 0) + " s",
+		Seconds:  v.Conditions.Duration,
 		Unshaded: "the first " + decimals(set.PeriodSkipSeconds, 1) + " s after each change of eye state, and the last seconds of a period too short for another " +
 			decimals(set.EpochSeconds, 1) + " s window",
 		Frame: web.OptionOf(c, web.Extras{}),

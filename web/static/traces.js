@@ -30,7 +30,30 @@
       problem: document.getElementById('trace-problem')
     };
     var chart = echarts.init(box, null, { renderer: 'canvas' });
-    var state = { from: 0, duration: 0, height: 0, seq: 0, page: null };
+    var state = { from: 0, duration: cfg.duration || 0, height: 0, seq: 0, page: null };
+
+    // A page can be linked: #from=120&montage=bipolar&filtered=0 opens the
+    // viewer there (values it does not know are passed over).
+    function choose(sel, value) {
+      for (var i = 0; i < sel.options.length; i++) {
+        if (sel.options[i].value === value) {
+          sel.value = value;
+        }
+      }
+    }
+    location.hash.replace(/^#/, '').split('&').forEach(function (part) {
+      var kv = part.split('=');
+      var v = decodeURIComponent(kv[1] || '');
+      switch (kv[0]) {
+        case 'from':
+          if (/^[0-9]+$/.test(v) && (!state.duration || Number(v) < state.duration)) {
+            state.from = Math.floor(Number(v) / PAGE) * PAGE;
+          }
+          break;
+        case 'montage': choose(el.montage, v); break;
+        case 'filtered': choose(el.filtered, v); break;
+      }
+    });
 
     function query() {
       return '?from=' + state.from + '&seconds=' + PAGE + '&montage=' + encodeURIComponent(el.montage.value) +
@@ -64,6 +87,11 @@
         })
         .catch(function (err) {
           if (seq !== state.seq) {
+            return;
+          }
+          if (!state.page && state.from > 0) {
+            state.from = 0; // a linked page past the end: start at the beginning
+            load();
             return;
           }
           el.problem.textContent = 'Traces: ' + err.message;
@@ -210,6 +238,10 @@
           ul.appendChild(li);
         });
         el.rejected.appendChild(ul);
+      }
+      if (window.history && history.replaceState) {
+        history.replaceState(null, '', '#from=' + page.from + '&montage=' + encodeURIComponent(page.montage) +
+          '&filtered=' + (page.filtered ? '1' : '0'));
       }
       box.setAttribute('data-from', String(page.from));
       box.setAttribute('data-montage', page.montage);

@@ -5,6 +5,7 @@ go 1.26.8
 require (
 	github.com/chromedp/cdproto v0.159.0
 	github.com/chromedp/chromedp v0.23.0
+	github.com/go-echarts/go-echarts/v2 v2.6.7
 	github.com/gorilla/mux v1.8.1
 	golang.org/x/crypto v0.59.0
 	gonum.org/v1/gonum v0.17.0

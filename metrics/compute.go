@@ -258,46 +258,59 @@ func (a *analysis) filter(rec *ingest.Recording) error {
 		slow = append(slow, notch...)
 	}
 	a.slow = slow
-	padFast, padSlow := PadLen(a.lp), PadLen(slow)
-	maxIn, maxOut := 0, 0
-	for i, g := range a.segsIn {
-		maxIn = max(maxIn, g.Count)
-		maxOut = max(maxOut, a.segs[i].Count)
-	}
+	lenFast, lenSlow := a.workLens()
 	work := make([][]float64, a.workers)
 	work2 := make([][]float64, a.workers)
 	a.level = make([]float64, len(a.data))
 	win := max(2, int(math.Round(a.s.Channel.WindowSeconds*a.fs)))
 	parallel(len(a.data), a.workers, func(w, c int) {
 		if work[w] == nil {
-			work[w] = make([]float64, maxIn+2*padFast)
-			work2[w] = make([]float64, maxOut+2*padSlow)
+			work[w] = make([]float64, lenFast)
+			work2[w] = make([]float64, lenSlow)
 		}
-		x := a.data[c]
-		for i, g := range a.segsIn {
-			out := x[a.segs[i].First : a.segs[i].First+a.segs[i].Count]
-			if g.Count <= padFast || len(out) <= padSlow {
-				clear(out) // too short to filter; no epoch fits in it
-				continue
-			}
-			buf := work[w][:g.Count]
-			for k, v := range x[g.First : g.First+g.Count] {
-				buf[k] = float64(v)
-			}
-			y := FiltFilt(work[w], buf, a.lp) // in place: cap(work) ≥ Count + 2·pad
-			dec := work2[w][:len(out)]
-			for k := range dec {
-				dec[k] = y[k*a.q]
-			}
-			z := FiltFilt(work2[w], dec, slow)
-			for k := range out {
-				out[k] = float32(z[k])
-			}
-		}
-		a.data[c] = x[:a.n]
+		a.data[c] = a.filterOne(a.data[c], work[w], work2[w])
 		a.level[c] = windowLevel(a.data[c], a.segs, win)
 	})
 	return nil
+}
+
+// workLens are the lengths of filterOne's two work buffers.
+func (a *analysis) workLens() (int, int) {
+	maxIn, maxOut := 0, 0
+	for i, g := range a.segsIn {
+		maxIn = max(maxIn, g.Count)
+		maxOut = max(maxOut, a.segs[i].Count)
+	}
+	return maxIn + 2*PadLen(a.lp), maxOut + 2*PadLen(a.slow)
+}
+
+// filterOne runs filter's three stages over one channel x (at the
+// recording's rate, a.nIn samples), segment by segment, in place, and
+// returns x[:a.n], the filtered channel at the analysis rate. work and
+// work2 hold at least workLens() values.
+func (a *analysis) filterOne(x []float32, work, work2 []float64) []float32 {
+	padFast, padSlow := PadLen(a.lp), PadLen(a.slow)
+	for i, g := range a.segsIn {
+		out := x[a.segs[i].First : a.segs[i].First+a.segs[i].Count]
+		if g.Count <= padFast || len(out) <= padSlow {
+			clear(out) // too short to filter; no epoch fits in it
+			continue
+		}
+		buf := work[:g.Count]
+		for k, v := range x[g.First : g.First+g.Count] {
+			buf[k] = float64(v)
+		}
+		y := FiltFilt(work, buf, a.lp) // in place: cap(work) ≥ Count + 2·pad
+		dec := work2[:len(out)]
+		for k := range dec {
+			dec[k] = y[k*a.q]
+		}
+		z := FiltFilt(work2, dec, a.slow)
+		for k := range out {
+			out[k] = float32(z[k])
+		}
+	}
+	return x[:a.n]
 }
 
 // windowLevel is the median over non-overlapping windows of win samples

@@ -45,6 +45,16 @@ func benchFile(tb testing.TB, minutes float64) []byte {
 	return b
 }
 
+// decodeBench decodes a benchmark file.
+func decodeBench(tb testing.TB, file []byte) *ingest.Recording {
+	tb.Helper()
+	rec, err := ingest.Decode(bytes.NewReader(file), int64(len(file)), "bench.edf", ingest.Options{})
+	if err != nil {
+		tb.Fatal(err)
+	}
+	return rec
+}
+
 func benchCompute(b *testing.B, minutes float64) {
 	benchComputeFile(b, benchFile(b, minutes), V1())
 	b.ReportMetric(float64(b.Elapsed().Seconds())/float64(b.N)/minutes, "s/recording-minute")
@@ -57,10 +67,7 @@ func benchComputeFile(b *testing.B, file []byte, s Settings) {
 	b.ResetTimer()
 	for i := 0; i < b.N; i++ {
 		b.StopTimer()
-		rec, err := ingest.Decode(bytes.NewReader(file), int64(len(file)), "bench.edf", ingest.Options{})
-		if err != nil {
-			b.Fatal(err)
-		}
+		rec := decodeBench(b, file)
 		b.StartTimer()
 		if _, err := Compute(rec, s); err != nil {
 			b.Fatal(err)

@@ -8,6 +8,9 @@ import (
 
 	"longwave/trends"
 	"longwave/web"
+
+	"github.com/go-echarts/go-echarts/v2/charts"
+	"github.com/go-echarts/go-echarts/v2/opts"
 )
 
 // courseChart draws one marker series over date: comparable visits as
@@ -29,11 +32,11 @@ func courseChart(sr trends.Series) (web.Option, web.CourseChart) {
 			tip = append(tip, "comparable")
 		} else {
 			for _, why := range pt.Reasons {
-				tip = append(tip, "not comparable: "+why)
+				tip = append(tip, "not comparable: "+peopleText(why))
 			}
 		}
 		for _, c := range pt.Cautions {
-			tip = append(tip, "caution: "+c)
+			tip = append(tip, "caution: "+peopleText(c))
 		}
 		for _, m := range pt.Literature.Matches {
 			if m.Position != "" {
@@ -54,32 +57,40 @@ func courseChart(sr trends.Series) (web.Option, web.CourseChart) {
 	if apart == nil {
 		apart = []web.Point{}
 	}
-	line := web.Series{Type: "line", Name: "comparable visits", Data: on, Symbol: "circle", SymbolSize: 8,
-		ItemStyle: &web.ItemStyle{Color: web.ColourLine}, LineStyle: &web.LineStyle{Color: web.ColourLine, Width: 2}, Z: 3}
 	band, cites, status := referenceBand(sr)
-	if len(band) > 0 {
-		line.MarkArea = &web.MarkArea{Silent: false,
-			ItemStyle: &web.ItemStyle{Color: web.ColourBand, BorderColor: web.ColourBandEdge, BorderWidth: 1},
-			Label:     &web.Label{Show: true, Position: "insideTopLeft", Color: web.ColourAxis, FontSize: 10},
-			Data:      band}
-	}
-	hollow := web.Series{Type: "scatter", Name: "not comparable", Data: apart, Symbol: "emptyCircle", SymbolSize: 10,
-		ItemStyle: &web.ItemStyle{Color: web.ColourApart, BorderColor: web.ColourApart, BorderWidth: 2}, Z: 4}
-	yName := unit
 	x0, x1, y0, y1, ok := extents(sr, band)
-	opt := web.Option{
-		UseUTC:  true,
-		Grid:    web.Grid{Left: 12, Right: 24, Top: 34, Bottom: 8, ContainLabel: true},
-		Tooltip: web.Tooltip{Trigger: "item", Confine: true},
-		Legend:  &web.Legend{Show: true, Top: 2, Left: "center"},
-		XAxis:   web.Axis{Type: "time", AxisLine: axisStyle(), SplitLine: gridLines()},
-		YAxis:   web.Axis{Type: "value", Name: yName, Scale: true, AxisLine: axisStyle(), SplitLine: gridLines()},
-		Series:  []web.Series{line, hollow},
-	}
+	xAxis := opts.XAxis{Type: "time", AxisLine: web.AxisLine(), SplitLine: web.GridLines()}
+	yAxis := opts.YAxis{Type: "value", Name: unit, Scale: opts.Bool(true), AxisLine: web.AxisLine(), SplitLine: web.GridLines()}
 	if ok {
-		opt.XAxis.Min, opt.XAxis.Max = x0, x1
-		opt.YAxis.Min, opt.YAxis.Max, opt.YAxis.Scale = y0, y1, false
+		xAxis.Min, xAxis.Max = x0, x1
+		yAxis.Min, yAxis.Max, yAxis.Scale = y0, y1, nil
 	}
+	c := web.NewChart()
+	c.SetGlobalOptions(
+		charts.WithGridOpts(opts.Grid{Left: "12", Right: "24", Top: "34", Bottom: "8", ContainLabel: opts.Bool(true)}),
+		charts.WithTooltipOpts(opts.Tooltip{Trigger: "item"}),
+		charts.WithLegendOpts(opts.Legend{Show: opts.Bool(true), Top: "2", Left: "center"}),
+		charts.WithXAxisOpts(xAxis),
+		charts.WithYAxisOpts(yAxis),
+	)
+	lineOpts := []charts.SeriesOpts{web.WithData(on),
+		charts.WithLineChartOpts(opts.LineChart{Symbol: "circle", SymbolSize: 8}),
+		charts.WithItemStyleOpts(opts.ItemStyle{Color: web.ColourLine}),
+		charts.WithLineStyleOpts(opts.LineStyle{Color: web.ColourLine, Width: 2})}
+	if len(band) > 0 {
+		lineOpts = append(lineOpts,
+			charts.WithMarkAreaStyleOpts(opts.MarkAreaStyle{
+				ItemStyle: &opts.ItemStyle{Color: web.ColourBand, BorderColor: web.ColourBandEdge, BorderWidth: 1},
+				Label:     &opts.Label{Show: opts.Bool(true), Position: "insideTopLeft", Color: web.ColourAxis, FontSize: 10}}),
+			charts.WithMarkAreaNameCoordItemOpts(band...))
+	}
+	c.AddSeries("comparable visits", nil, lineOpts...)
+	hollow := charts.NewScatter()
+	hollow.AddSeries("not comparable", nil, web.WithData(apart),
+		charts.WithScatterChartOpts(opts.ScatterChart{Symbol: "emptyCircle", SymbolSize: 10}),
+		charts.WithItemStyleOpts(opts.ItemStyle{Color: web.ColourApart, BorderColor: web.ColourApart, BorderWidth: 2}))
+	c.Overlap(hollow)
+	opt := web.OptionOf(c, web.Extras{UseUTC: true, Confine: true, Series: []web.SeriesExtra{{Z: 3}, {Z: 4}}})
 	chart := web.CourseChart{
 		ChartBox: web.ChartBox{Title: markerTitle(sr.Marker) + " · " + regionName(sr.Region) + seriesState(sr.State)},
 		Figures:  changeFigures(sr.Change, unit),
@@ -89,7 +100,7 @@ func courseChart(sr trends.Series) (web.Option, web.CourseChart) {
 		chart.Reference = strings.Join(cites, "; ")
 		chart.Status = status
 	} else {
-		chart.Reference = noBandReason(sr)
+		chart.Reference = peopleText(noBandReason(sr))
 	}
 	if notComputable > 0 {
 		chart.Caption = strconv.Itoa(notComputable) + " visit(s) without a value: see the visit screens for the reason."
@@ -135,7 +146,7 @@ func shortCitation(c string) string {
 // limits is the same, spanning from the run's first date to the next run's first date
 // (the first run from the axis start, the last to the axis end). A missing
 // lower or upper limit is drawn to the axis edge.
-func referenceBand(sr trends.Series) ([][2]web.MarkAreaCorner, []string, string) {
+func referenceBand(sr trends.Series) ([]opts.MarkAreaNameCoordItem, []string, string) {
 	type run struct {
 		from   string
 		lo, hi *float64
@@ -168,7 +179,7 @@ func referenceBand(sr trends.Series) ([][2]web.MarkAreaCorner, []string, string)
 		}
 		runs = append(runs, run{from: pt.Date, lo: rg.Lower, hi: rg.Upper, cite: rg.Citation, status: rg.Status, name: name})
 	}
-	var out [][2]web.MarkAreaCorner
+	var out []opts.MarkAreaNameCoordItem
 	var cites []string
 	statuses := map[string]bool{}
 	for i, rn := range runs {
@@ -186,10 +197,8 @@ func referenceBand(sr trends.Series) ([][2]web.MarkAreaCorner, []string, string)
 		if rn.hi != nil {
 			y1 = *rn.hi
 		}
-		out = append(out, [2]web.MarkAreaCorner{
-			{Name: "advisory reference " + rangeText(rn.lo, rn.hi), Coord: [2]any{x0, y0}},
-			{Coord: [2]any{x1, y1}},
-		})
+		out = append(out, opts.MarkAreaNameCoordItem{Name: "advisory reference " + rangeText(rn.lo, rn.hi),
+			Coordinate0: []any{x0, y0}, Coordinate1: []any{x1, y1}})
 		if !contains(cites, rn.cite) {
 			cites = append(cites, rn.cite)
 		}
@@ -260,7 +269,7 @@ func changeFigures(c trends.Change, unit string) []web.Pair {
 			web.Pair{Label: "Slope", Value: sig(c.Slope.PerYear) + " " + perYear},
 			web.Pair{Label: "95 % interval", Value: sig(c.Slope.CILow) + " to " + sig(c.Slope.CIHigh) + " " + perYear})
 	} else {
-		out = append(out, web.Pair{Label: "Slope", Value: c.Slope.Reason})
+		out = append(out, web.Pair{Label: "Slope", Value: peopleText(c.Slope.Reason)})
 	}
 	if c.HasFromBaseline {
 		out = append(out, web.Pair{Label: "Since baseline", Value: withUnit(sig(c.FromBaseline), unit) + " in " + decimals(c.Years, 1) + " y"})
@@ -274,7 +283,7 @@ func changeFigures(c trends.Change, unit string) []web.Pair {
 		out = append(out, web.Pair{Label: "Reliable change", Value: "RCI " + decimals(c.Reliable.RC, 2) + ", " + verdict})
 		out = append(out, web.Pair{Label: "Smallest reliable", Value: withUnit(sig(c.Reliable.Threshold), unit)})
 	case c.Reliable.Reason != "":
-		out = append(out, web.Pair{Label: "Reliable change", Value: c.Reliable.Reason})
+		out = append(out, web.Pair{Label: "Reliable change", Value: peopleText(c.Reliable.Reason)})
 	}
 	if c.Expected.Known {
 		out = append(out, web.Pair{Label: "For age", Value: c.Expected.Verdict})
@@ -304,7 +313,7 @@ const chartMarginDays = 60
 // points padded by chartMarginDays, and a value range holding every point
 // and every finite band limit, padded by 8 % of its span (so that a band's
 // edges show even when all points lie inside it).
-func extents(sr trends.Series, band [][2]web.MarkAreaCorner) (x0, x1 string, y0, y1 float64, ok bool) {
+func extents(sr trends.Series, band []opts.MarkAreaNameCoordItem) (x0, x1 string, y0, y1 float64, ok bool) {
 	var first, last time.Time
 	lo, hi := math.Inf(1), math.Inf(-1)
 	for _, pt := range sr.Points {
@@ -323,8 +332,8 @@ func extents(sr trends.Series, band [][2]web.MarkAreaCorner) (x0, x1 string, y0,
 		}
 	}
 	for _, b := range band {
-		for _, c := range b {
-			if v, isNum := c.Coord[1].(float64); isNum {
+		for _, c := range [][]any{b.Coordinate0, b.Coordinate1} {
+			if v, isNum := c[1].(float64); isNum {
 				lo, hi = math.Min(lo, v), math.Max(hi, v)
 			}
 		}

@@ -232,7 +232,7 @@ func cohortRowView(row trends.CohortRow) web.CohortRow {
 		v.OverdueDays = web.Cell{Text: "–"}
 	}
 	for _, f := range row.LatestFlags {
-		label := f.Rule
+		label := ruleText(f.Rule)
 		if !contains(v.Flags, label) {
 			v.Flags = append(v.Flags, label)
 		}

@@ -59,7 +59,7 @@ func withUnit(text, unit string) string {
 
 func markerCell(m metrics.Marker) web.Cell {
 	if !m.Computable {
-		return web.Cell{Text: "–", Note: "not computable: " + m.Reason}
+		return web.Cell{Text: "–", Note: "not computable: " + peopleText(m.Reason)}
 	}
 	return web.Cell{Text: sig(m.Value), Unit: displayUnit(m.Unit)}
 }
@@ -97,7 +97,7 @@ func markerTitle(name string) string {
 	if t, ok := markerTitles[name]; ok {
 		return t
 	}
-	return name
+	return keyWords(name)
 }
 
 var regionNames = map[string]string{
@@ -112,7 +112,7 @@ func regionName(r string) string {
 	if n, ok := regionNames[r]; ok {
 		return n
 	}
-	return r
+	return keyWords(r)
 }
 
 func stateName(s ingest.EyeState) string {
@@ -126,7 +126,7 @@ func stateName(s ingest.EyeState) string {
 	case "":
 		return ""
 	default:
-		return string(s)
+		return keyWords(string(s))
 	}
 }
 
@@ -135,11 +135,7 @@ func flagView(f metrics.Flag) web.FlagView {
 	if f.Severity == metrics.NotComparable {
 		sev = "not comparable"
 	}
-	markers := "all markers"
-	if len(f.Markers) > 0 {
-		markers = strings.Join(f.Markers, ", ")
-	}
-	return web.FlagView{Severity: sev, SeverityKey: string(f.Severity), Reason: f.Reason, Source: f.Source, Markers: markers}
+	return web.FlagView{Severity: sev, SeverityKey: string(f.Severity), Reason: peopleText(f.Reason), Source: f.Source, Markers: markersText(f.Markers)}
 }
 
 func flagViews(fs []metrics.Flag) []web.FlagView {
@@ -198,7 +194,7 @@ func conditionPairs(c ingest.Conditions, q metrics.Quality, short bool) []web.Pa
 		web.Pair{Label: "Equipment", Value: orNone(c.Equipment)},
 	)
 	for _, ca := range c.Cautions {
-		ps = append(ps, web.Pair{Label: "Decoder note", Value: ca.Text})
+		ps = append(ps, web.Pair{Label: "Decoder note", Value: peopleText(ca.Text)})
 	}
 	return ps
 }
@@ -234,7 +230,7 @@ func periodSourceText(p ingest.PeriodSource) string {
 	case ingest.FromNothing:
 		return "nothing (unknown)"
 	default:
-		return string(p)
+		return keyWords(string(p))
 	}
 }
 

@@ -215,7 +215,7 @@ func verdictWords(v string) string {
 	case trends.VerdictNotComparable:
 		return "not comparable"
 	default:
-		return v
+		return keyWords(v)
 	}
 }
 

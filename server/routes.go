@@ -47,6 +47,7 @@ func (s *Server) table() []route {
 		{"api-patients", http.MethodGet, "/api/v1/patients", permView, s.apiPatients},
 		{"api-course", http.MethodGet, "/api/v1/patients/{code}/course", permView, s.apiCourse},
 		{"api-visit", http.MethodGet, "/api/v1/visits/{id:[0-9]+}", permView, s.apiVisit},
+		{"api-traces", http.MethodGet, "/api/v1/visits/{id:[0-9]+}/traces", permView, s.apiVisitTraces},
 		{"api-cohort", http.MethodGet, "/api/v1/cohort", permCohort, s.apiCohort},
 		{"api-export", http.MethodGet, "/api/v1/export.csv", permExport, s.exportCSV},
 

@@ -62,6 +62,14 @@ var (
 	chartDataRE = regexp.MustCompile(`(?s)<script type="application/json" id="lw-chart-data">(.*?)</script>`)
 )
 
+var tagRE = regexp.MustCompile(`<[^>]*>`)
+
+// htmlText is the text of a page as people read it: the words between the
+// tags, without scripts and their data.
+func htmlText(body string) string {
+	return html.UnescapeString(tagRE.ReplaceAllString(scriptTagRE.ReplaceAllString(body, " "), " "))
+}
+
 // checkInert asserts that a page holds none of the hostile text in a form a
 // browser would run or render as markup, no inline script or style, and
 // that its chart data is valid JSON.
@@ -119,6 +127,9 @@ func TestScreensRender(t *testing.T) {
 			t.Errorf("GET %s: addresses of other hosts: %q", path, got)
 		}
 		checkInert(t, path, body)
+		if bad := keysIn(htmlText(body)); len(bad) > 0 {
+			t.Errorf("GET %s shows keys to people: %q", path, bad)
+		}
 		for _, m := range assetRE.FindAllStringSubmatch(body, -1) {
 			assets[m[1]] = true
 		}

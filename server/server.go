@@ -117,6 +117,7 @@ type Server struct {
 	router   routerInfo
 	cohort   cohortCache
 	bodies   bodyCache
+	traces   traceCache
 	sessions sessionCache
 	auditor  auditor
 	// building serialises the build of cached bodies, so that 50 requests

@@ -145,7 +145,7 @@ func (s *Server) upload(w http.ResponseWriter, r *http.Request) {
 		ans.VisitID, ans.VisitURL = out.VisitID, visitURL(out.VisitID)
 	}
 	for _, fl := range out.Flags {
-		ans.Flags = append(ans.Flags, flagJSON{Severity: flagView(fl).Severity, Reason: fl.Reason})
+		ans.Flags = append(ans.Flags, flagJSON{Severity: flagView(fl).Severity, Reason: peopleText(fl.Reason)})
 	}
 	ans.Timing = &uploadTiming{DecodeMS: out.DecodeTime.Milliseconds(), ComputeMS: out.ComputeTime.Milliseconds(), StoreMS: out.StoreTime.Milliseconds()}
 	if wantsJSON(r) {

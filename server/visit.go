@@ -10,6 +10,9 @@ import (
 	"longwave/metrics"
 	"longwave/server/store"
 	"longwave/web"
+
+	"github.com/go-echarts/go-echarts/v2/charts"
+	"github.com/go-echarts/go-echarts/v2/opts"
 )
 
 // visitID parses the {id} path variable (the route admits digits only).
@@ -64,12 +67,12 @@ func comparable(flags []metrics.Flag) bool {
 func verdictText(flags []metrics.Flag) string {
 	for _, f := range flags {
 		if f.Severity == metrics.NotComparable {
-			return "Not comparable: " + f.Reason
+			return "Not comparable: " + peopleText(f.Reason)
 		}
 	}
 	for _, f := range flags {
 		if f.Severity == metrics.Caution {
-			return "Comparable, with caution: " + f.Reason
+			return "Comparable, with caution: " + peopleText(f.Reason)
 		}
 	}
 	return "Comparable"
@@ -119,6 +122,9 @@ func (s *Server) visitPage(w http.ResponseWriter, r *http.Request) {
 	for _, m := range v.Markers {
 		page.Markers = append(page.Markers, web.MarkerRow{Name: markerTitle(m.Name), Region: regionName(m.Region), State: stateName(m.State), Value: markerCell(m)})
 	}
+	if len(v.Recordings) > 0 {
+		page.Traces = traceViewer(v, s.visitSettings(v))
+	}
 	if d == nil {
 		page.NoDisplay = "No spectra or traces are stored for this visit."
 	} else {
@@ -127,7 +133,8 @@ func (s *Server) visitPage(w http.ResponseWriter, r *http.Request) {
 	s.render(w, r, http.StatusOK, page)
 }
 
-// addVisitCharts adds the spectrum and trace charts of each state.
+// addVisitCharts adds the spectrum chart of each state (the traces are the
+// viewer's, see traces.go).
 func addVisitCharts(page *web.VisitPage, d metrics.Display) {
 	for _, st := range []ingest.EyeState{ingest.EyesClosed, ingest.EyesOpen, ingest.EyesUnknown} {
 		sp, ok := pickSpectrum(d.Spectra, st)
@@ -142,22 +149,9 @@ func addVisitCharts(page *web.VisitPage, d metrics.Display) {
 			}
 			page.Spectra = append(page.Spectra, web.ChartBox{Key: key, Title: "Spectrum, " + stateName(st), Caption: caption})
 		}
-		var traces []metrics.Trace
-		for _, t := range d.Traces {
-			if t.State == st && len(t.Samples) > 0 && t.Rate > 0 {
-				traces = append(traces, t)
-			}
-		}
-		if len(traces) > 0 {
-			key := "traces-" + string(st)
-			opt, bar := traceOption(traces)
-			page.ChartData[key] = opt
-			page.Traces = append(page.Traces, web.ChartBox{Key: key, Title: "Traces, " + stateName(st), Tall: true,
-				Caption: "Common-average reference, filtered as analysed; vertical bar " + decimals(bar, 0) + " µV; time in seconds of recording."})
-		}
 	}
-	if len(page.Spectra) == 0 && len(page.Traces) == 0 {
-		page.NoDisplay = "No spectra or traces are stored for this visit."
+	if len(page.Spectra) == 0 {
+		page.NoDisplay = "No spectra are stored for this visit."
 	}
 }
 
@@ -182,14 +176,6 @@ func pickSpectrum(all []metrics.Spectrum, st ingest.EyeState) (metrics.Spectrum,
 	return *found, true
 }
 
-func axisStyle() *web.AxisLine {
-	return &web.AxisLine{Show: true, LineStyle: &web.LineStyle{Color: web.ColourAxis}}
-}
-
-func gridLines() *web.SplitLine {
-	return &web.SplitLine{Show: true, LineStyle: &web.LineStyle{Color: web.ColourGridLine}}
-}
-
 // spectrumOption draws power and aperiodic fit over frequency on a log
 // power axis, with the peak marked.
 func spectrumOption(sp metrics.Spectrum) web.Option {
@@ -203,115 +189,33 @@ func spectrumOption(sp metrics.Spectrum) web.Option {
 			fit = append(fit, [2]float64{round(f, 3), roundSig(sp.Aperiodic[i])})
 		}
 	}
-	ps := web.Series{Type: "line", Name: "power", Data: power, ShowSymbol: web.Bool(false),
-		LineStyle: &web.LineStyle{Color: web.ColourLine, Width: 1.6}, ItemStyle: &web.ItemStyle{Color: web.ColourLine}}
+	c := web.NewChart()
+	c.SetGlobalOptions(
+		charts.WithGridOpts(opts.Grid{Left: "12", Right: "16", Top: "34", Bottom: "10", ContainLabel: opts.Bool(true)}),
+		charts.WithTooltipOpts(opts.Tooltip{Trigger: "item"}),
+		charts.WithLegendOpts(opts.Legend{Show: opts.Bool(true), Top: "4", Left: "center"}),
+		charts.WithXAxisOpts(opts.XAxis{Type: "value", Name: "Hz", Min: 1, Max: 45, AxisLine: web.AxisLine(), SplitLine: web.GridLines()}),
+		charts.WithYAxisOpts(opts.YAxis{Type: "log", Name: "µV²/Hz", AxisLine: web.AxisLine(), SplitLine: web.GridLines()}),
+	)
+	powerOpts := []charts.SeriesOpts{web.WithData(power),
+		charts.WithLineChartOpts(opts.LineChart{ShowSymbol: opts.Bool(false)}),
+		charts.WithLineStyleOpts(opts.LineStyle{Color: web.ColourLine, Width: 1.6}),
+		charts.WithItemStyleOpts(opts.ItemStyle{Color: web.ColourLine})}
 	if sp.PeakHz > 0 && sp.PeakPower > 0 {
-		ps.MarkPoint = &web.MarkPoint{Symbol: "pin", SymbolSize: 38,
-			ItemStyle: &web.ItemStyle{Color: web.ColourPeak},
-			Label:     &web.Label{Show: true, Color: "#fff", FontSize: 10},
-			Data: []web.MarkPointDatum{{Name: "peak", Coord: [2]any{round(sp.PeakHz, 3), roundSig(sp.PeakPower)},
-				Value: decimals(sp.PeakHz, 1)}}}
+		powerOpts = append(powerOpts,
+			charts.WithMarkPointStyleOpts(opts.MarkPointStyle{Label: &opts.Label{Show: opts.Bool(true), Color: "#fff", FontSize: 10}}),
+			charts.WithMarkPointNameCoordItemOpts(opts.MarkPointNameCoordItem{Name: "peak", Symbol: "pin", SymbolSize: 38,
+				Coordinate: []any{round(sp.PeakHz, 3), roundSig(sp.PeakPower)}, Value: decimals(sp.PeakHz, 1),
+				ItemStyle: &opts.ItemStyle{Color: web.ColourPeak}}))
 	}
-	series := []web.Series{ps}
+	c.AddSeries("power", nil, powerOpts...)
 	if len(fit) > 0 {
-		series = append(series, web.Series{Type: "line", Name: "aperiodic fit", Data: fit, ShowSymbol: web.Bool(false),
-			LineStyle: &web.LineStyle{Color: web.ColourFit, Width: 1.4, Type: "dashed"}, ItemStyle: &web.ItemStyle{Color: web.ColourFit}})
+		c.AddSeries("aperiodic fit", nil, web.WithData(fit),
+			charts.WithLineChartOpts(opts.LineChart{ShowSymbol: opts.Bool(false)}),
+			charts.WithLineStyleOpts(opts.LineStyle{Color: web.ColourFit, Width: 1.4, Type: "dashed"}),
+			charts.WithItemStyleOpts(opts.ItemStyle{Color: web.ColourFit}))
 	}
-	return web.Option{
-		UseUTC:  true,
-		Grid:    web.Grid{Left: 12, Right: 16, Top: 34, Bottom: 10, ContainLabel: true},
-		Tooltip: web.Tooltip{Trigger: "item", Confine: true},
-		Legend:  &web.Legend{Show: true, Top: 4, Left: "center"},
-		XAxis:   web.Axis{Type: "value", Name: "Hz", Min: 1, Max: 45, AxisLine: axisStyle(), SplitLine: gridLines()},
-		YAxis:   web.Axis{Type: "log", Name: "µV²/Hz", LogBase: 10, AxisLine: axisStyle(), SplitLine: gridLines()},
-		Series:  series,
-	}
-}
-
-// traceScales are the bar heights offered, in µV: the one nearest a third of
-// the spacing between channels is drawn.
-var traceScales = []float64{10, 20, 50, 100, 200, 500, 1000}
-
-// traceOption stacks the channels of one state with a µV scale bar at the
-// end and a time axis in seconds of recording. It returns the bar height.
-func traceOption(traces []metrics.Trace) (web.Option, float64) {
-	// Spacing: twice the largest 98th-percentile-like amplitude is robust
-	// enough for display: use the largest absolute sample after dropping
-	// the top 1 % of each channel.
-	amp := 0.0
-	for _, t := range traces {
-		amp = math.Max(amp, robustPeak(t.Samples))
-	}
-	spacing := math.Max(2*amp, 20)
-	bar := traceScales[0]
-	for _, b := range traceScales {
-		if b <= spacing*0.6 {
-			bar = b
-		}
-	}
-	start := traces[0].Start
-	var series []web.Series
-	for i, t := range traces {
-		off := float64(len(traces)-1-i) * spacing
-		pts := make([][2]float64, len(t.Samples))
-		for j, v := range t.Samples {
-			pts[j] = [2]float64{round(t.Start+float64(j)/t.Rate, 4), round(float64(v)+off, 2)}
-		}
-		colour := web.ColourTraceClose
-		if t.State == ingest.EyesOpen {
-			colour = web.ColourTraceOpen
-		}
-		series = append(series, web.Series{Type: "line", Name: t.Channel, Data: pts, ShowSymbol: web.Bool(false),
-			LineStyle: &web.LineStyle{Color: colour, Width: 0.9}, ItemStyle: &web.ItemStyle{Color: colour},
-			EndLabel: &web.Label{Show: true, Formatter: "{a}", Color: web.ColourAxis}, Silent: true, Sampling: "lttb"})
-	}
-	end := start
-	for _, t := range traces {
-		end = math.Max(end, t.Start+float64(len(t.Samples))/t.Rate)
-	}
-	x := round(end+0.25, 3)
-	series = append(series, web.Series{Type: "line", Name: decimals(bar, 0) + " µV", ShowSymbol: web.Bool(false),
-		Data:      [][2]float64{{x, -1.4 * spacing}, {x, -1.4*spacing + bar}},
-		LineStyle: &web.LineStyle{Color: web.ColourScale, Width: 3}, ItemStyle: &web.ItemStyle{Color: web.ColourScale},
-		EndLabel: &web.Label{Show: true, Formatter: "{a}", Color: web.ColourScale}, Silent: true})
-	return web.Option{
-		Grid:    web.Grid{Left: 10, Right: 70, Top: 12, Bottom: 10, ContainLabel: true},
-		Tooltip: web.Tooltip{Trigger: "none"},
-		XAxis: web.Axis{Type: "value", Name: "s", Min: round(start, 3), SplitLine: gridLines(),
-			AxisLine: &web.AxisLine{Show: true, OnZero: web.Bool(false), LineStyle: &web.LineStyle{Color: web.ColourAxis}}},
-		YAxis: web.Axis{Type: "value", Min: round(-1.5*spacing, 2), Max: round(float64(len(traces))*spacing-spacing/2, 2),
-			AxisLabel: &web.AxisLabel{Show: false}, SplitLine: &web.SplitLine{Show: false}},
-		Series: series,
-	}, bar
-}
-
-// robustPeak is the absolute amplitude exceeded by 1 % of the samples.
-func robustPeak(x []float32) float64 {
-	if len(x) == 0 {
-		return 0
-	}
-	// A 64-bin histogram of |x| up to the maximum keeps this O(n).
-	maxAbs := 0.0
-	for _, v := range x {
-		maxAbs = math.Max(maxAbs, math.Abs(float64(v)))
-	}
-	if maxAbs == 0 {
-		return 0
-	}
-	const bins = 64
-	var h [bins + 1]int
-	for _, v := range x {
-		h[int(math.Abs(float64(v))/maxAbs*bins)]++
-	}
-	keep := len(x) - len(x)/100
-	n := 0
-	for i := 0; i <= bins; i++ {
-		n += h[i]
-		if n >= keep {
-			return float64(i+1) / bins * maxAbs
-		}
-	}
-	return maxAbs
+	return web.OptionOf(c, web.Extras{Confine: true})
 }
 
 func round(v float64, d int) float64 {

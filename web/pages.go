@@ -193,12 +193,38 @@ type VisitPage struct {
 	Flags      []FlagView
 	Markers    []MarkerRow
 	Spectra    []ChartBox
-	Traces     []ChartBox
+	Traces     *TraceViewer
 	NoDisplay  string
 	ChartData  map[string]Option
 }
 
 func (*VisitPage) template() string { return "visit.html" }
+
+// TraceViewer is the visit's whole recording, page by page (the
+// "traces" partial and static/traces.js): where its pages come from, the
+// chart frame built with go-echarts, the viewer's colours and the row
+// heights offered. It reaches the page as JSON data.
+type TraceViewer struct {
+	Source   string        `json:"source"`   // the traces API of the visit
+	Duration string        `json:"-"`        // "150 s", for people
+	Seconds  float64       `json:"duration"` // the recording's length, s
+	Unshaded string        `json:"-"`        // what lies in no window, for people
+	Frame    Option        `json:"frame"`
+	Colours  TraceColours  `json:"colours"`
+	Heights  []float64     `json:"heights"` // µV per row
+	Montages []TraceChoice `json:"-"`
+	Signals  []TraceChoice `json:"-"`
+}
+
+// TraceColours are the viewer's colours (chart.go).
+type TraceColours struct {
+	Trace, Bad, Kept, Rejected, Edge, Closed, Open, Scale, Axis string
+}
+
+// TraceChoice is one option of a viewer control.
+type TraceChoice struct {
+	Value, Label string
+}
 
 // MarkerRow is one marker of a visit.
 type MarkerRow struct {

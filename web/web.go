@@ -155,7 +155,7 @@ func Parse(assets *Assets) (*Templates, error) {
 	if err != nil {
 		return nil, fmt.Errorf("web: parse templates: %w", err)
 	}
-	for _, name := range []string{"longwave.css", "charts.js", "upload.js", "echarts/echarts.min.js"} {
+	for _, name := range []string{"longwave.css", "charts.js", "traces.js", "upload.js", "echarts/echarts.min.js"} {
 		if assets.URL(name) == "" {
 			return nil, fmt.Errorf("web: asset %s missing", name)
 		}

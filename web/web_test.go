@@ -32,9 +32,9 @@ func samplePages(t *testing.T, tpl *Templates) map[string]Page {
 	f := Frame{Title: hostile, User: hostile, Role: "admin", CSRF: "tok" + hostile,
 		Nav: []NavLink{{Label: "Patients", URL: "/patients", Current: true}}}
 	flags := []FlagView{{Severity: "not comparable", SeverityKey: "not_comparable", Reason: hostile, Source: hostile, Markers: hostile}}
-	chart := map[string]Option{"m0": {
-		Series: []Series{{Type: "line", Name: hostile, Data: []Point{{Value: [2]any{"2024-01-01", 9.5}, Tip: []string{hostile}}}}},
-	}}
+	c := NewChart()
+	c.AddSeries(hostile, nil, WithData([]Point{{Value: [2]any{"2024-01-01", 9.5}, Tip: []string{hostile}}}))
+	chart := map[string]Option{"m0": OptionOf(c, Extras{UseUTC: true})}
 	courseBody, err := tpl.RenderCourseBody(&CourseBody{Code: hostile, Facts: []Pair{{hostile, hostile}}, AddURL: "/add?patient=x",
 		Charts:    []CourseChart{{ChartBox: ChartBox{Key: "m0", Title: hostile, Caption: hostile}, Figures: []Pair{{hostile, hostile}}, Reference: hostile, HasBand: true, Status: hostile}},
 		Visits:    []VisitRow{{Date: "2024-01-01", Age: "70 y", URL: "/visits/1", Verdict: hostile, Conditions: []Pair{{hostile, hostile}}, Flags: flags}},
@@ -55,7 +55,9 @@ func samplePages(t *testing.T, tpl *Templates) map[string]Page {
 		"course":   &CoursePage{Frame: f, Body: courseBody},
 		"visit": &VisitPage{Frame: f, Code: hostile, CourseURL: "/patients/x", Date: "2024-01-01", Verdict: hostile, Settings: []Pair{{hostile, hostile}},
 			Conditions: []Pair{{hostile, hostile}}, Flags: flags, Markers: []MarkerRow{{Name: hostile, Value: Cell{Text: "1", Note: hostile}}},
-			Spectra: []ChartBox{{Key: "m0", Title: hostile}}, ChartData: chart},
+			Spectra: []ChartBox{{Key: "m0", Title: hostile}}, ChartData: chart,
+			Traces: &TraceViewer{Source: "/api/v1/visits/1/traces", Duration: hostile, Frame: chart["m0"], Heights: []float64{50},
+				Montages: []TraceChoice{{Value: "average", Label: hostile}}, Signals: []TraceChoice{{Value: "1", Label: hostile}}}},
 		"upload":  &UploadPage{Frame: f, Code: hostile, Date: "2024-01-01", Patients: []string{hostile}, States: []Pair{{hostile, hostile}}, Error: hostile, Result: &UploadResult{Message: hostile, VisitURL: "/visits/1", CourseURL: "/patients/x", Flags: flags}},
 		"sources": &SourcesPage{Frame: f, Advisory: hostile, Rows: []SourceRow{{Set: hostile, Citation: hostile, Note: hostile, Status: "checked"}}},
 		"users":   &UsersPage{Frame: f, Users: []UserRow{{Name: hostile, Role: "admin"}}, Roles: []string{"admin"}, Error: hostile, Audit: []AuditRow{{User: hostile, Subject: hostile}}},
@@ -89,11 +91,16 @@ func TestRenderEveryPage(t *testing.T) {
 			if strings.ContainsAny(m[1], "<>") {
 				t.Errorf("%s: chart data holds < or >", name)
 			}
-			var opts map[string]Option
+			var opts map[string]struct {
+				Series []struct {
+					Name string `json:"name"`
+					Data []Point
+				} `json:"series"`
+			}
 			if err := json.Unmarshal([]byte(m[1]), &opts); err != nil {
 				t.Errorf("%s: chart data: %v", name, err)
-			} else if opts["m0"].Series[0].Name != hostile {
-				t.Errorf("%s: chart series name came back as %q", name, opts["m0"].Series[0].Name)
+			} else if s := opts["m0"].Series; len(s) != 1 || s[0].Name != hostile || s[0].Data[0].Tip[0] != hostile {
+				t.Errorf("%s: chart series came back as %+v", name, s)
 			}
 		} else if name == "course" || name == "visit" {
 			t.Errorf("%s: no chart data element", name)

@@ -84,26 +84,11 @@ func (p *Pipeline) reprocessVisit(ctx context.Context, id int64) (VisitChange, e
 	if err != nil {
 		return VisitChange{}, err
 	}
-	src, err := p.Store.VisitSource(ctx, id)
+	src, rec, err := p.decodeStored(ctx, id)
 	if err != nil {
 		return VisitChange{}, err
 	}
-	label := fmt.Sprintf("%s %s (visit %d)", src.PatientCode, src.Visit.Date, id)
-	parts := make([]part, 0, len(src.Recordings))
-	for _, r := range src.Recordings {
-		path, err := p.Store.StoredRecordingPath(ctx, r.SHA256)
-		if err != nil {
-			return VisitChange{}, fmt.Errorf("intake: %s: %w", label, err)
-		}
-		parts = append(parts, part{file: &File{Path: path, Name: r.Role + " recording " + r.SHA256[:12]},
-			role: r.Role, sha: r.SHA256, size: r.Size, format: r.Format})
-	}
-	slices.SortFunc(parts, func(a, b part) int { return roleRank(a.role) - roleRank(b.role) })
-	rec, err := p.decodeParts(parts, src.DeclaredState)
-	if err != nil {
-		return VisitChange{}, fmt.Errorf("intake: %s: %w", label, err)
-	}
-	restoreSidecarFacts(rec, src)
+	label := visitLabel(src)
 	periods := append([]ingest.Period(nil), rec.Periods...)
 	res, err := metrics.Compute(rec, p.Settings)
 	if err != nil {
@@ -117,6 +102,43 @@ func (p *Pipeline) reprocessVisit(ctx context.Context, id int64) (VisitChange, e
 		OldVersion: old.SettingsVersion, OldHash: old.SettingsHash}
 	ch.Changes, ch.Added, ch.Removed = diffMarkers(old.Markers, res.Markers)
 	return ch, nil
+}
+
+// DecodeStored decodes a visit again from its stored recording files, with
+// what sidecars said at ingest restored, exactly as Reprocess does: the
+// recording the visit's markers were made from. It returns store.ErrNotFound
+// (wrapped) for an unknown visit.
+func (p *Pipeline) DecodeStored(ctx context.Context, id int64) (*ingest.Recording, error) {
+	_, rec, err := p.decodeStored(ctx, id)
+	return rec, err
+}
+
+func (p *Pipeline) decodeStored(ctx context.Context, id int64) (store.VisitSource, *ingest.Recording, error) {
+	src, err := p.Store.VisitSource(ctx, id)
+	if err != nil {
+		return src, nil, err
+	}
+	label := visitLabel(src)
+	parts := make([]part, 0, len(src.Recordings))
+	for _, r := range src.Recordings {
+		path, err := p.Store.StoredRecordingPath(ctx, r.SHA256)
+		if err != nil {
+			return src, nil, fmt.Errorf("intake: %s: %w", label, err)
+		}
+		parts = append(parts, part{file: &File{Path: path, Name: r.Role + " recording " + r.SHA256[:12]},
+			role: r.Role, sha: r.SHA256, size: r.Size, format: r.Format})
+	}
+	slices.SortFunc(parts, func(a, b part) int { return roleRank(a.role) - roleRank(b.role) })
+	rec, err := p.decodeParts(parts, src.DeclaredState)
+	if err != nil {
+		return src, nil, fmt.Errorf("intake: %s: %w", label, err)
+	}
+	restoreSidecarFacts(rec, src)
+	return src, rec, nil
+}
+
+func visitLabel(src store.VisitSource) string {
+	return fmt.Sprintf("%s %s (visit %d)", src.PatientCode, src.Visit.Date, src.Visit.ID)
 }
 
 func roleRank(role string) int {

@@ -12,7 +12,7 @@ import (
 	"time"
 
 	"longwave/metrics"
-	"longwave/server/store"
+	"longwave/metrics/clinic"
 )
 
 // DefaultFollowUpMonths is the follow-up interval when neither the patient
@@ -41,12 +41,6 @@ func DefaultMainMarkers() []SeriesRef {
 		{Marker: metrics.ThetaAlphaRatio, Region: metrics.RegionPosterior, State: "closed"},
 		{Marker: metrics.AperiodicExponent, Region: metrics.RegionGlobal, State: "closed"},
 	}
-}
-
-// CohortPatient is a patient with all their visit records.
-type CohortPatient struct {
-	Patient store.Patient
-	Visits  []store.VisitRecord
 }
 
 // CohortOptions are what BuildCohort needs beside the patients.
@@ -128,7 +122,7 @@ type Cohort struct {
 // BuildCohort makes one row per patient (in the given order) and the
 // cohort's retention and share of non-comparable visits. Retention counts
 // every visit, comparable or not.
-func BuildCohort(patients []CohortPatient, opt CohortOptions) Cohort {
+func BuildCohort(patients []clinic.PatientCourse, opt CohortOptions) Cohort {
 	table := opt.Reliability
 	if table == nil {
 		table = DefaultReliability()

@@ -8,7 +8,7 @@ import (
 
 	"longwave/ingest"
 	"longwave/metrics"
-	"longwave/server/store"
+	"longwave/metrics/clinic"
 )
 
 // RuleBadDate flags a visit whose date is not a civil date: it cannot be
@@ -154,7 +154,7 @@ type Course struct {
 
 // assessed is a visit in date order with its parsed date and all flags.
 type assessed struct {
-	rec        *store.VisitRecord
+	rec        *clinic.VisitRecord
 	date       civilDate
 	dateOK     bool
 	flags      []metrics.Flag
@@ -164,7 +164,7 @@ type assessed struct {
 // assess sorts a patient's visits by date (then ID; unparseable dates last)
 // and gathers each visit's flags: stored, settings, and against the visit
 // before it.
-func assess(visits []store.VisitRecord, version, hash string) []assessed {
+func assess(visits []clinic.VisitRecord, version, hash string) []assessed {
 	out := make([]assessed, len(visits))
 	for i := range visits {
 		a := &out[i]
@@ -304,7 +304,7 @@ func changeOf(points []SeriesPoint, id seriesID, table []Reliability, exp Expect
 	return ComputeChange(cps, rel, ok, exp)
 }
 
-func followUpMonths(p store.Patient, def int) int {
+func followUpMonths(p clinic.Patient, def int) int {
 	switch {
 	case p.FollowUpMonths > 0:
 		return p.FollowUpMonths
@@ -331,7 +331,7 @@ func nextDue(visits []assessed, months int, today civilDate) (string, int) {
 // that marker (a flag concerns only its markers), the ranges at the visit's
 // age and the change figures over the comparable points. The expected
 // yearly change for age is taken from the ranges at the baseline age.
-func BuildCourse(p store.Patient, visits []store.VisitRecord, opt CourseOptions) Course {
+func BuildCourse(p clinic.Patient, visits []clinic.VisitRecord, opt CourseOptions) Course {
 	table := opt.Reliability
 	if table == nil {
 		table = DefaultReliability()

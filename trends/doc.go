@@ -4,13 +4,16 @@
 // marker changed over the comparable visits. It also builds the cohort
 // follow-up and local reference ranges from a clinic's control participants.
 // It knows nothing of HTTP or SQL: plain values in, plain values out, every
-// exported value a struct with JSON tags (no maps).
+// exported value a struct with JSON tags (no maps). Its inputs are the
+// vocabulary of package metrics/clinic (Patient, VisitRecord, PatientCourse,
+// ReferenceRange), which the store fills; trends imports no longwave/server
+// package (TestNoServerImports).
 //
 // # Comparability (rules.go, thresholds.go)
 //
 //	CheckVisit(VisitQuality{Conditions, Quality, Markers}) []metrics.Flag   // single-visit gates, run at intake
-//	CheckSettings(v store.VisitRecord, version, hash string) []metrics.Flag // other processing settings
-//	CompareVisits(prev, cur store.VisitRecord) []metrics.Flag              // cautions between two visits
+//	CheckSettings(v clinic.VisitRecord, version, hash string) []metrics.Flag // other processing settings
+//	CompareVisits(prev, cur clinic.VisitRecord) []metrics.Flag              // cautions between two visits
 //	Rules() []Rule                                                         // the rule catalogue for people
 //	FlagAffects(f metrics.Flag, m metrics.Marker) bool
 //
@@ -22,8 +25,8 @@
 //
 // # Reference ranges (ranges.go, rangefile.go)
 //
-//	NewRanges(rows []store.ReferenceRange) (*Ranges, error)        // validates; errors name the row
-//	ParseRangesTSV(r io.Reader, set string) ([]store.ReferenceRange, error) // a clinic's own file; errors name the line
+//	NewRanges(rows []clinic.ReferenceRange) (*Ranges, error)        // validates; errors name the row
+//	ParseRangesTSV(r io.Reader, set string) ([]clinic.ReferenceRange, error) // a clinic's own file; errors name the line
 //	(*Ranges).Lookup(marker, region, state string, age float64) RangeLookup
 //	(RangeLookup).Place(value float64) RangeLookup                  // below/within/above, z where mean and SD exist
 //	NoRangeReason(marker string) string
@@ -45,7 +48,7 @@
 //
 // # Course (course.go) — for the patient screen and the API
 //
-//	BuildCourse(p store.Patient, visits []store.VisitRecord, opt CourseOptions) Course
+//	BuildCourse(p clinic.Patient, visits []clinic.VisitRecord, opt CourseOptions) Course
 //
 //	CourseOptions{Ranges *Ranges; LocalRanges *LocalRanges; SettingsVersion, SettingsHash string;
 //	              Reliability []Reliability (nil: default); Today time.Time; FollowUpMonths int}
@@ -66,12 +69,11 @@
 //
 // # Cohort (cohort.go) — for the cohort screen and `longwave export`
 //
-//	BuildCohort(patients []CohortPatient, opt CohortOptions) Cohort
+//	BuildCohort(patients []clinic.PatientCourse, opt CohortOptions) Cohort
 //	SortRows(rows []CohortRow, key string, descending bool) error // code, overdue, last_visit, next_due, visits, comparable_visits
 //	FilterRows(rows []CohortRow, f RowFilter) []CohortRow        // RowFilter{Overdue, Flagged, ReliableChange}
 //	WriteCohortCSV(w io.Writer, rows []CohortRow) error
 //
-//	CohortPatient{Patient store.Patient; Visits []store.VisitRecord}
 //	CohortOptions{Today time.Time; FollowUpMonths int (0: 12); SettingsVersion, SettingsHash string;
 //	              Reliability []Reliability; Markers []SeriesRef (nil: DefaultMainMarkers())}
 //	Cohort{Today; FollowUpMonths; Markers; Rows []CohortRow; Patients; Visits; NonComparable;
@@ -81,7 +83,7 @@
 //
 // # Local ranges (local.go)
 //
-//	BuildLocalRanges(patients []CohortPatient, opt LocalOptions) *LocalRanges
+//	BuildLocalRanges(patients []clinic.PatientCourse, opt LocalOptions) *LocalRanges
 //	(*LocalRanges).Check(marker, region, state string, age float64, ageKnown bool, value float64, computable bool) LocalCheck
 //	FitPrediction(ages, values []float64) (Prediction, error); (Prediction).At(x0) (yhat, lower, upper)
 //

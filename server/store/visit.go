@@ -288,12 +288,6 @@ func (s *Store) VisitDisplay(ctx context.Context, id int64) (metrics.Display, er
 	return d, nil
 }
 
-// PatientCourse pairs a patient with its visits ordered by date.
-type PatientCourse struct {
-	Patient Patient
-	Visits  []VisitRecord
-}
-
 // AllVisitRecords returns every patient (ordered by code) with its visits
 // (ordered by date), for the cohort page and the export. It runs five
 // queries whatever the number of patients. With marker names given, only

@@ -54,6 +54,9 @@ type CohortOptions struct {
 	Reliability []Reliability
 	// Markers whose direction each row shows (nil: DefaultMainMarkers()).
 	Markers []SeriesRef
+	// Norms are the clinic's control models (nil: none); where a main
+	// marker has one, its reliable change index takes the noise from it.
+	Norms *ControlNorms
 }
 
 // MarkerDirection is a row's summary of one main marker.
@@ -178,7 +181,7 @@ func BuildCohort(patients []clinic.PatientCourse, opt CohortOptions) Cohort {
 		}
 		row.Flagged = len(row.LatestFlags) > 0
 		for _, ref := range refs {
-			row.Markers = append(row.Markers, directionOf(as, ref, table))
+			row.Markers = append(row.Markers, directionOf(as, ref, table, opt.Norms))
 			if row.Markers[len(row.Markers)-1].ReliableChange {
 				row.ReliableChange = true
 			}
@@ -214,7 +217,7 @@ func BuildCohort(patients []clinic.PatientCourse, opt CohortOptions) Cohort {
 }
 
 // directionOf summarises one main marker of a patient.
-func directionOf(as []assessed, ref SeriesRef, table []Reliability) MarkerDirection {
+func directionOf(as []assessed, ref SeriesRef, table []Reliability, norms *ControlNorms) MarkerDirection {
 	id, ok := findSeries(as, ref)
 	md := MarkerDirection{Marker: ref.Marker, Region: ref.Region, State: ref.State,
 		Direction: DirectionUnknown, DirectionBasis: "marker not found in any visit"}
@@ -239,7 +242,7 @@ func directionOf(as []assessed, ref SeriesRef, table []Reliability) MarkerDirect
 		values = append(values, v)
 	}
 	rel, relOK := findReliability(table, id.name, id.region, id.state)
-	ch := changeFrom(cps, years, values, rel, relOK, ExpectedRate{})
+	ch := changeFrom(cps, years, values, rel, relOK, ExpectedRate{}, norms.Find(id.name, id.region, id.state))
 	md.Points, md.Direction, md.DirectionBasis = ch.Points, ch.Direction, ch.DirectionBasis
 	md.HasSlope, md.SlopePerYear = ch.Slope.Known, ch.Slope.PerYear
 	md.RCIKnown, md.RC, md.ReliableChange = ch.Reliable.Known, ch.Reliable.RC, ch.Reliable.Reliable

@@ -61,7 +61,21 @@
 //	SeriesPoint{VisitID; Date; AgeYears; AgeKnown; Value; Unit; Computable; Comparable;
 //	       Reasons, Cautions []string; Literature RangeLookup; Local LocalCheck}
 //	Change{Points; Baseline…/Latest… (VisitID, Date, Value); HasFromBaseline; FromBaseline; Years;
-//	       Slope Slope; Reliable ReliableChange; Expected ExpectedForAge; Direction; DirectionBasis}
+//	       Slope Slope; Reliable ReliableChange; Expected ExpectedForAge; Verdict SlopeVerdict;
+//	       Direction; DirectionBasis}
+//	Series.LiteratureNotes []LiteratureNote                     // published ageing notes, advisory
+//
+// # Control norms (controls.go; the model in norm.go and verdict.go)
+//
+//	BuildControlNorms(patients []clinic.PatientCourse, opt ControlNormOptions) *ControlNorms
+//	(*ControlNorms).Find(marker, region, state string) ControlNorm // not Known, with a Reason, when none
+//
+// With CourseOptions.Norms, a series whose control model is Known takes from
+// it the expected change for age (Expected.Basis "clinic controls"), the
+// standard error of measurement of the reliable change index (the model's
+// residual SD; Reliable.SEBasis says so, the literature r is the fallback)
+// and the verdict on the patient's own slope (CompareSlope). CohortOptions.Norms
+// does the same for the cohort's reliable change.
 //
 // Visits are in date order; every series has one point per visit (a visit
 // without the marker gives a point that is not computable), so charts share

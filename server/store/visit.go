@@ -294,7 +294,23 @@ func (s *Store) VisitDisplay(ctx context.Context, id int64) (metrics.Display, er
 // markers of those names are loaded (the cohort page needs a few of the
 // ~40 per visit).
 func (s *Store) AllVisitRecords(ctx context.Context, markerNames ...string) ([]PatientCourse, error) {
-	rows, err := s.r.QueryContext(ctx, `SELECT `+patientColumns+` FROM patients ORDER BY code`)
+	return s.courses(ctx, "1", "1", markerNames)
+}
+
+// GroupVisitRecords returns the patients of one group (Patient.Group equal
+// to group, ignoring ASCII case and surrounding spaces, as
+// clinic.Patient.IsControl compares), ordered by code, with all their
+// visits and markers: the clinic's controls for their norms, without
+// reading any other patient.
+func (s *Store) GroupVisitRecords(ctx context.Context, group string) ([]PatientCourse, error) {
+	const match = `lower(trim(group_name)) = lower(trim(?))`
+	return s.courses(ctx, match, `v.patient_id IN (SELECT id FROM patients WHERE `+match+`)`, nil, group)
+}
+
+// courses returns the patients matching patientWhere (over patients) with
+// the visits matching visitWhere (over visits v), both taking args.
+func (s *Store) courses(ctx context.Context, patientWhere, visitWhere string, markerNames []string, args ...any) ([]PatientCourse, error) {
+	rows, err := s.r.QueryContext(ctx, `SELECT `+patientColumns+` FROM patients WHERE `+patientWhere+` ORDER BY code`, args...)
 	if err != nil {
 		return nil, fmt.Errorf("store: patients: %w", err)
 	}
@@ -313,7 +329,10 @@ func (s *Store) AllVisitRecords(ctx context.Context, markerNames ...string) ([]P
 	if err := rows.Err(); err != nil {
 		return nil, fmt.Errorf("store: patients: %w", err)
 	}
-	vs, err := s.loadVisits(ctx, "1", markerNames)
+	if len(out) == 0 {
+		return nil, nil
+	}
+	vs, err := s.loadVisits(ctx, visitWhere, markerNames, args...)
 	if err != nil {
 		return nil, err
 	}

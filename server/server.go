@@ -117,6 +117,7 @@ type Server struct {
 	router   routerInfo
 	cohort   cohortCache
 	bodies   bodyCache
+	norms    normsCache
 	sessions sessionCache
 	auditor  auditor
 	// building serialises the build of cached bodies, so that 50 requests

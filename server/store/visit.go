@@ -307,6 +307,29 @@ func (s *Store) GroupVisitRecords(ctx context.Context, group string) ([]PatientC
 	return s.courses(ctx, match, `v.patient_id IN (SELECT id FROM patients WHERE `+match+`)`, nil, group)
 }
 
+// GroupStamp is a fingerprint of everything GroupVisitRecords would return
+// for group: it changes when a patient of the group is added or changed,
+// or one of their visits is added, analysed again or has its markers or
+// flags replaced. A cache of values built from the group (the control
+// norms) compares stamps instead of rebuilding on a timer. One query of
+// aggregates, no rows.
+func (s *Store) GroupStamp(ctx context.Context, group string) (string, error) {
+	const ids = `SELECT id FROM patients WHERE lower(trim(group_name)) = lower(trim(?1))`
+	const visits = `SELECT id FROM visits WHERE patient_id IN (` + ids + `)`
+	var stamp string
+	err := s.r.QueryRowContext(ctx, `
+		SELECT (SELECT count(*) || '/' || coalesce(max(updated_at), '') FROM patients WHERE id IN (`+ids+`))
+		    || '|' || (SELECT count(*) || '/' || coalesce(max(id), 0) FROM visits WHERE id IN (`+visits+`))
+		    || '|' || (SELECT count(*) || '/' || coalesce(max(analysed_at), '') FROM conditions WHERE visit_id IN (`+visits+`))
+		    || '|' || (SELECT count(*) || '/' || coalesce(max(id), 0) || '/' || total(value) FROM markers WHERE visit_id IN (`+visits+`))
+		    || '|' || (SELECT count(*) || '/' || coalesce(max(id), 0) FROM flags WHERE visit_id IN (`+visits+`))`,
+		group).Scan(&stamp)
+	if err != nil {
+		return "", fmt.Errorf("store: group %q stamp: %w", group, err)
+	}
+	return stamp, nil
+}
+
 // courses returns the patients matching patientWhere (over patients) with
 // the visits matching visitWhere (over visits v), both taking args.
 func (s *Store) courses(ctx context.Context, patientWhere, visitWhere string, markerNames []string, args ...any) ([]PatientCourse, error) {

@@ -396,3 +396,52 @@ func TestGroupVisitRecords(t *testing.T) {
 		t.Errorf("no such group: %d patients, %v", len(none), err)
 	}
 }
+
+// The group stamp moves with every change GroupVisitRecords would show, and
+// only with those.
+func TestGroupStamp(t *testing.T) {
+	ctx := context.Background()
+	s := mustOpen(t)
+	stamp := func() string {
+		t.Helper()
+		st, err := s.GroupStamp(ctx, "control")
+		if err != nil {
+			t.Fatal(err)
+		}
+		return st
+	}
+	empty := stamp()
+	save := func(code, group, date string, seed uint64) int64 {
+		t.Helper()
+		nv := sampleVisit(code, date, []byte(code+date), seed)
+		nv.Patient.Group = group
+		v, err := s.SaveVisit(ctx, nv)
+		if err != nil {
+			t.Fatal(err)
+		}
+		return v.ID
+	}
+	id := save("MC-0001", "control", "2021-05-02", 1)
+	one := stamp()
+	if one == empty {
+		t.Error("a control's first visit left the stamp alone")
+	}
+	save("MC-0002", "patient", "2021-05-02", 2)
+	if stamp() != one {
+		t.Error("a patient's visit moved the controls' stamp")
+	}
+	save("MC-0001", "control", "2022-05-02", 3)
+	two := stamp()
+	if two == one {
+		t.Error("a control's second visit left the stamp alone")
+	}
+	// A new analysis of a control's visit (reprocess) with other values.
+	a := sampleAnalysis(7)
+	a.Result.Markers[0].Value += 0.5
+	if err := s.ReplaceAnalysis(ctx, id, a); err != nil {
+		t.Fatal(err)
+	}
+	if stamp() == two {
+		t.Error("a control's new analysis left the stamp alone")
+	}
+}

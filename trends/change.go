@@ -222,11 +222,14 @@ func ReliableChangeIndex(x1, x2 float64, rel Reliability) ReliableChange {
 	return out
 }
 
+// seFromNorm says where a clinic-based SE comes from (the model's figures
+// and basis are in Change.Expected).
+const seFromNorm = "SE = the residual SD of the clinic's control model: the visit-to-visit noise of its controls about their own lines"
+
 // reliableFromNorm is the reliable change index with the standard error of
 // measurement taken from the control model: SE = σ, its residual SD.
-func reliableFromNorm(x1, x2 float64, norm ControlNorm) ReliableChange {
-	out := ReliableChange{Known: true, SEBasis: BasisClinic, SE: norm.ResidualSD,
-		SESource: "SE = the residual SD " + num(norm.ResidualSD) + " of the control model (the visit-to-visit noise of the clinic's controls; " + norm.Basis() + ")"}
+func reliableFromNorm(x1, x2 float64, norm seriesNorm) ReliableChange {
+	out := ReliableChange{Known: true, SEBasis: BasisClinic, SE: norm.ResidualSD, SESource: seFromNorm}
 	out.finish(x1, x2)
 	return out
 }
@@ -274,8 +277,8 @@ type ExpectedForAge struct {
 }
 
 // expectedFromNorm is the expected change of a known control model.
-func expectedFromNorm(n ControlNorm) ExpectedForAge {
-	return ExpectedForAge{Known: true, Basis: BasisClinic, BasisText: n.Basis(),
+func expectedFromNorm(n seriesNorm) ExpectedForAge {
+	return ExpectedForAge{Known: true, Basis: BasisClinic, BasisText: n.basis,
 		PerYear: n.PerYear.Value, CILow: n.PerYear.CILow, CIHigh: n.PerYear.CIHigh,
 		SlopeSD: n.SlopeSD, ResidualSD: n.ResidualSD, Persons: n.Persons, Visits: n.Visits, Source: n.Method}
 }
@@ -331,12 +334,12 @@ type ExpectedRate struct {
 // rel is the marker's reliability row (ok false: none); exp the expected
 // yearly change for age. A point whose date does not parse is skipped.
 func ComputeChange(points []ChangePoint, rel Reliability, relOK bool, exp ExpectedRate) Change {
-	return computeChange(points, rel, relOK, exp, ControlNorm{})
+	return computeChange(points, rel, relOK, exp, seriesNorm{})
 }
 
 // computeChange is ComputeChange with the series' control model (Known
 // false: none).
-func computeChange(points []ChangePoint, rel Reliability, relOK bool, exp ExpectedRate, norm ControlNorm) Change {
+func computeChange(points []ChangePoint, rel Reliability, relOK bool, exp ExpectedRate, norm seriesNorm) Change {
 	years := make([]float64, 0, len(points))
 	values := make([]float64, 0, len(points))
 	var first civilDate
@@ -360,7 +363,7 @@ func computeChange(points []ChangePoint, rel Reliability, relOK bool, exp Expect
 // years since the first, with the control model norm of the series (Known
 // false: none), which then gives the reliable change index its noise and the
 // expected change for age.
-func changeFrom(kept []ChangePoint, years, values []float64, rel Reliability, relOK bool, exp ExpectedRate, norm ControlNorm) Change {
+func changeFrom(kept []ChangePoint, years, values []float64, rel Reliability, relOK bool, exp ExpectedRate, norm seriesNorm) Change {
 	var c Change
 	c.Points = len(kept)
 	c.Direction, c.DirectionBasis = DirectionUnknown, "fewer than 2 comparable points"

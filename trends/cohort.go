@@ -242,7 +242,7 @@ func directionOf(as []assessed, ref SeriesRef, table []Reliability, norms *Contr
 		values = append(values, v)
 	}
 	rel, relOK := findReliability(table, id.name, id.region, id.state)
-	ch := changeFrom(cps, years, values, rel, relOK, ExpectedRate{}, norms.Find(id.name, id.region, id.state))
+	ch := changeFrom(cps, years, values, rel, relOK, ExpectedRate{}, norms.find(id.name, id.region, id.state))
 	md.Points, md.Direction, md.DirectionBasis = ch.Points, ch.Direction, ch.DirectionBasis
 	md.HasSlope, md.SlopePerYear = ch.Slope.Known, ch.Slope.PerYear
 	md.RCIKnown, md.RC, md.ReliableChange = ch.Reliable.Known, ch.Reliable.RC, ch.Reliable.Reliable

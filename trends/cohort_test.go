@@ -209,6 +209,34 @@ func BenchmarkBuildCohort5000(b *testing.B) {
 	}
 }
 
+// The same cohort with the control norms of 100 controls: the reliable
+// change of each row's main markers takes its noise from them.
+func BenchmarkBuildCohort5000Norms(b *testing.B) {
+	ps := benchCohort()
+	today := time.Date(2024, 6, 1, 0, 0, 0, 0, time.UTC)
+	norms := BuildControlNorms(ageingControls(100, -0.02), ControlNormOptions{SettingsVersion: testVersion, SettingsHash: testHash, Today: today})
+	opt := CohortOptions{Today: today, SettingsVersion: testVersion, SettingsHash: testHash, Norms: norms}
+	b.ResetTimer()
+	for b.Loop() {
+		c := BuildCohort(ps, opt)
+		if len(c.Rows) != 5000 {
+			b.Fatal("rows")
+		}
+	}
+}
+
+// Fitting the control norms of 100 controls with 4 visits (three marker
+// series), as the server does when the controls' data changed.
+func BenchmarkBuildControlNorms100(b *testing.B) {
+	ps := ageingControls(100, -0.02)
+	opt := ControlNormOptions{SettingsVersion: testVersion, SettingsHash: testHash, Today: time.Date(2024, 6, 1, 0, 0, 0, 0, time.UTC)}
+	for b.Loop() {
+		if n := BuildControlNorms(ps, opt); len(n.Norms) != 3 {
+			b.Fatal("norms")
+		}
+	}
+}
+
 func BenchmarkWriteCohortCSV5000(b *testing.B) {
 	c := BuildCohort(benchCohort(), CohortOptions{Today: time.Date(2024, 6, 1, 0, 0, 0, 0, time.UTC), SettingsVersion: testVersion, SettingsHash: testHash})
 	var buf bytes.Buffer

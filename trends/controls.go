@@ -22,6 +22,16 @@ type ControlNorms struct {
 	FittedOn        string        `json:"fitted_on"`
 	SettingsVersion string        `json:"settings_version"`
 	Norms           []ControlNorm `json:"norms"`
+	// index finds a series' model in Norms, bases holds each model's
+	// Basis() (the cohort asks for the same few thousands of times).
+	index map[seriesID]int
+	bases []string
+}
+
+// seriesNorm is a series' control model with its basis text made once.
+type seriesNorm struct {
+	ControlNorm
+	basis string
 }
 
 // ControlNormOptions are what BuildControlNorms needs beside the patients.
@@ -87,9 +97,12 @@ func BuildControlNorms(patients []clinic.PatientCourse, opt ControlNormOptions) 
 		}
 	}
 	sortSeriesIDs(ids)
-	for _, id := range ids {
-		out.Norms = append(out.Norms, FitControlNorm(obs[id], NormOptions{
-			Marker: id.name, Region: id.region, State: id.state, Min: opt.Min, FittedOn: out.FittedOn}))
+	out.index = make(map[seriesID]int, len(ids))
+	for i, id := range ids {
+		out.index[id] = i
+		n := FitControlNorm(obs[id], NormOptions{Marker: id.name, Region: id.region, State: id.state, Min: opt.Min, FittedOn: out.FittedOn})
+		out.Norms = append(out.Norms, n)
+		out.bases = append(out.bases, n.Basis())
 	}
 	return out
 }
@@ -103,7 +116,11 @@ func (r SeriesRef) matches(id seriesID) bool {
 // built, no controls, or no control with a comparable value of the series)
 // the model is not Known and its Reason says why.
 func (n *ControlNorms) Find(marker, region, state string) ControlNorm {
-	none := ControlNorm{Marker: marker, Region: region, State: state}
+	return n.find(marker, region, state).ControlNorm
+}
+
+func (n *ControlNorms) find(marker, region, state string) seriesNorm {
+	none := seriesNorm{ControlNorm: ControlNorm{Marker: marker, Region: region, State: state}}
 	switch {
 	case n == nil:
 		none.Reason = "none was built for this course"
@@ -112,9 +129,12 @@ func (n *ControlNorms) Find(marker, region, state string) ControlNorm {
 		none.Reason = "the clinic has no control participants (patients of group \"" + clinic.ControlGroup + "\")"
 		return none
 	}
-	for _, m := range n.Norms {
-		if m.Marker == marker && m.Region == region && m.State == state {
-			return m
+	if i, ok := n.index[seriesID{marker, region, state}]; ok {
+		return seriesNorm{n.Norms[i], n.bases[i]}
+	}
+	for _, m := range n.Norms { // norms made without BuildControlNorms
+		if n.index == nil && m.Marker == marker && m.Region == region && m.State == state {
+			return seriesNorm{m, m.Basis()}
 		}
 	}
 	none.Reason = fmt.Sprintf("none of the %d control %s has a comparable value of this marker", n.Controls, plural(n.Controls, "participant", "participants"))

@@ -302,7 +302,7 @@ func sortSeriesIDs(ids []seriesID) {
 }
 
 // changeOf computes the change figures of one series from its points.
-func changeOf(points []SeriesPoint, id seriesID, table []Reliability, exp ExpectedRate, norm ControlNorm) Change {
+func changeOf(points []SeriesPoint, id seriesID, table []Reliability, exp ExpectedRate, norm seriesNorm) Change {
 	var cps []ChangePoint
 	for _, p := range points {
 		if p.Comparable {
@@ -403,9 +403,9 @@ func BuildCourse(p clinic.Patient, visits []clinic.VisitRecord, opt CourseOption
 				break
 			}
 		}
-		norm := opt.Norms.Find(id.name, id.region, id.state)
+		norm := opt.Norms.find(id.name, id.region, id.state)
 		s.Change = changeOf(s.Points, id, table, exp, norm)
-		s.Change.Verdict = patientVerdict(s.Points, ses, norm)
+		s.Change.Verdict = patientVerdict(s.Points, ses, norm.ControlNorm)
 		c.Series = append(c.Series, s)
 	}
 	return c

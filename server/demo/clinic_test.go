@@ -18,6 +18,11 @@ import (
 
 var planDay = time.Date(2026, time.December, 1, 0, 0, 0, 0, time.UTC)
 
+// demoHealthyCalledFaster is the number of the demo's healthy agers (26
+// controls and 8 healthy patients) whose PDR the verdict calls "declines
+// faster than the clinic's controls", as the README states it.
+const demoHealthyCalledFaster = 1
+
 func TestPlanShape(t *testing.T) {
 	plan := Plan(planDay)
 	if got := len(plan); got != patientCount+ControlCount {
@@ -113,18 +118,63 @@ func TestBuildShowsEveryRule(t *testing.T) {
 		t.Fatalf("patients stored: %d, want %d", len(pats), patientCount+ControlCount)
 	}
 	v1 := metrics.V1()
+	controls, err := st.GroupVisitRecords(ctx, clinic.ControlGroup)
+	if err != nil {
+		t.Fatal(err)
+	}
+	norms := trends.BuildControlNorms(controls, trends.ControlNormOptions{SettingsVersion: v1.Version, SettingsHash: v1.Hash(), Today: planDay})
+	course := map[string]Course{}
+	for _, p := range Plan(planDay) {
+		course[p.Code] = p.Course
+	}
 	fired := map[string]int{}
+	var faster, healthyFaster []string
+	healthy := 0
 	for _, ps := range pats {
 		visits, err := st.PatientVisits(ctx, ps.Patient.ID)
 		if err != nil {
 			t.Fatal(err)
 		}
-		c := trends.BuildCourse(ps.Patient, visits, trends.CourseOptions{SettingsVersion: v1.Version, SettingsHash: v1.Hash(), Today: planDay})
+		c := trends.BuildCourse(ps.Patient, visits, trends.CourseOptions{SettingsVersion: v1.Version, SettingsHash: v1.Hash(), Today: planDay, Norms: norms})
 		for _, v := range c.Visits {
 			for _, f := range v.Flags {
 				fired[f.Rule]++
 			}
 		}
+		// The verdict on the posterior dominant rhythm against the controls.
+		for _, sr := range c.Series {
+			if sr.Marker != metrics.PDRFrequency || sr.Region != metrics.RegionPosterior || sr.State != "closed" {
+				continue
+			}
+			v := sr.Change.Verdict
+			t.Logf("%s %-7s %-14s %d comparable: %s (slope %.3f Hz/y, z %.2f)", ps.Patient.Code, ps.Patient.Group, course[ps.Patient.Code],
+				sr.Change.Points, v.Text, v.Patient.PerYear, v.Z)
+			if course[ps.Patient.Code] == HealthyAgeing {
+				healthy++
+			}
+			switch {
+			case v.Text == trends.SlopeDeclinesFaster && course[ps.Patient.Code] == HealthyAgeing:
+				healthyFaster = append(healthyFaster, ps.Patient.Code)
+			case v.Text == trends.SlopeDeclinesFaster:
+				faster = append(faster, ps.Patient.Code)
+			case course[ps.Patient.Code] == SteadySlowing:
+				t.Errorf("%s slows 0.3 Hz a year but is %q", ps.Patient.Code, v.Text)
+			}
+		}
+	}
+	n := norms.Find(metrics.PDRFrequency, metrics.RegionPosterior, "closed")
+	t.Logf("PDR norm: %s; %.4f Hz/y (%.4f to %.4f), slope SD %.4f, residual SD %.4f", n.Basis(), n.PerYear.Value, n.PerYear.CILow, n.PerYear.CIHigh, n.SlopeSD, n.ResidualSD)
+	t.Logf("declines faster: %v; healthy agers called so: %d of %d %v", faster, len(healthyFaster), healthy, healthyFaster)
+	// Issue 10, point 6: the model runs out of the box, and the README's
+	// figures ("How sure is a verdict?" and the demo section) are these.
+	if !n.Known || n.Persons < 24 {
+		t.Errorf("PDR norm of the demo: %+v", n)
+	}
+	if len(faster) != patientCount-healthyPatients {
+		t.Errorf("%d patients called faster than the controls, want the %d who slow", len(faster), patientCount-healthyPatients)
+	}
+	if len(healthyFaster) != demoHealthyCalledFaster {
+		t.Errorf("healthy agers called faster: %v, the README says %d: update it", healthyFaster, demoHealthyCalledFaster)
 	}
 	t.Logf("rules fired: %v", fired)
 	for _, rule := range []string{

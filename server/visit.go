@@ -117,7 +117,13 @@ func (s *Server) visitPage(w http.ResponseWriter, r *http.Request) {
 		ChartData: map[string]web.Option{},
 	}
 	for _, m := range v.Markers {
-		page.Markers = append(page.Markers, web.MarkerRow{Name: markerTitle(m.Name), Region: regionName(m.Region), State: stateName(m.State), Value: markerCell(m)})
+		page.Markers = append(page.Markers, web.MarkerRow{Name: markerTitle(m.Name), Region: regionName(m.Region), State: stateName(m.State), Value: markerCell(m),
+			Interval: intervalText(m), Method: methodText(m.Uncertainty)})
+		page.HasIntervals = page.HasIntervals || m.Uncertainty != nil
+	}
+	if !page.HasIntervals && len(v.Markers) > 0 {
+		page.NoIntervals = "These markers carry no interval of their own: they were made by settings version " +
+			v.SettingsVersion + ", which makes none."
 	}
 	if d == nil {
 		page.NoDisplay = "No spectra or traces are stored for this visit."

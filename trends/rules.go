@@ -419,13 +419,8 @@ func regionWords(r string) string {
 }
 
 func stateWords(s ingest.EyeState) string {
-	switch s {
-	case ingest.EyesClosed:
-		return ", eyes closed"
-	case ingest.EyesOpen:
-		return ", eyes open"
-	case ingest.EyesUnknown:
-		return ", eye state unknown"
+	if w := s.Words(); w != "" {
+		return ", " + w
 	}
 	return ""
 }

@@ -170,3 +170,24 @@ func TestIntervalWords(t *testing.T) {
 		}
 	}
 }
+
+func TestVerdictText(t *testing.T) {
+	all := metrics.Flag{Rule: "few_good_positions", Severity: metrics.NotComparable, Reason: "12 of the 19 positions good"}
+	one := metrics.Flag{Rule: "interval_too_wide", Severity: metrics.NotComparable, Markers: []string{"pdr_frequency/posterior/closed"},
+		Reason: "posterior dominant rhythm: interval too wide"}
+	caution := metrics.Flag{Rule: "little_clean_closed", Severity: metrics.Caution, Reason: "40 s of clean eyes-closed data"}
+	tests := []struct {
+		flags []metrics.Flag
+		want  string
+	}{
+		{nil, "Comparable"},
+		{[]metrics.Flag{caution}, "Comparable, with caution: 40 s of clean eyes-closed data"},
+		{[]metrics.Flag{caution, one}, "Not comparable for some markers: posterior dominant rhythm: interval too wide"},
+		{[]metrics.Flag{one, all}, "Not comparable: 12 of the 19 positions good"},
+	}
+	for _, tt := range tests {
+		if got := verdictText(tt.flags); got != tt.want {
+			t.Errorf("verdictText(%v) = %q, want %q", tt.flags, got, tt.want)
+		}
+	}
+}

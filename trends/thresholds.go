@@ -78,19 +78,29 @@ const MinCleanClosedSeconds = 60.0
 // proportional. Each is chosen against what the marker must resolve between
 // two visits; all are longwave design and provisional until the clinic's
 // own controls give a visit-to-visit SD per marker.
+//
+// For orientation (measured with the v2 bootstrap on the shared eegmmidb
+// pairs S001–S003 and S038 when these limits were set, about 58 s of clean
+// data per state; intervals narrow about as 1/√duration): PDR 0.40–0.60 Hz
+// wide, exponent 0.11–0.24, posterior theta/alpha 28–100 % of its value,
+// alpha reactivity 0.05–0.23.
+// So one minute of eyes-closed data gives alpha reactivity that can be
+// compared and a PDR that cannot; a routine recording of several minutes
+// brings the PDR and the exponent inside their limits, and theta/alpha where
+// the theta and alpha bands are well above the noise.
 
 // MaxIntervalWidthPDR is the widest interval, in Hz, of the posterior
 // dominant rhythm (and of the alpha centre of gravity and the left and right
-// occipital peaks, same unit and same question). Source: longwave design.
-// Reason: half the provisional smallest reliable change of the PDR, 0.632 Hz
-// (1.96 · √2 · SD · √(1 − r) with SD 0.57 Hz and r 0.84, REFERENCES.md
-// section 2; Jacobson & Truax 1991), rounded down. Two visits at the limit
-// have SE ≤ 0.3 / (2 · 1.96) = 0.077 Hz each, so their difference has a 95 %
-// half-width of at most 1.96 · √2 · 0.077 = 0.21 Hz, a third of the reliable
-// change: the visits' own noise cannot by itself make or hide one. The
-// limit is also about one Welch bin (0.25 Hz at 4 s segments), the spacing
-// the peak interpolation refines.
-const MaxIntervalWidthPDR = 0.3
+// occipital peaks, same unit and same question). Source: longwave design, on
+// the reliable change index (REFERENCES.md section 2; Jacobson & Truax
+// 1991). Reason: the index assumes a measurement error of SE = SD · √(1 − r)
+// = 0.57 · √0.16 = 0.228 Hz per visit (provisional SD and r of the PDR). A
+// visit whose own noise is larger than the index assumes would turn that
+// noise into "reliable change"; the limit keeps the visit's own SE at no
+// more than half of it, 0.114 Hz, so that it takes at most a quarter of the
+// error variance the index allows for: width 2 · 1.96 · 0.114 = 0.447 Hz,
+// rounded to 0.45 Hz.
+const MaxIntervalWidthPDR = 0.45
 
 // MaxIntervalWidthAsymmetry is the widest interval, in Hz, of the left minus
 // right occipital peak difference. Source: longwave design, on the steps of

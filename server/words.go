@@ -37,6 +37,7 @@ var ruleWords = map[string]string{
 	trends.RuleSampleRateChange:    "sampling rate changed since the previous visit",
 	trends.RuleFiltersChange:       "hardware filters changed since the previous visit",
 	trends.RuleBadDate:             "visit date is not a calendar date",
+	trends.RuleIntervalWide:        "interval too wide to compare",
 
 	metrics.RuleAmplitude: "swing too large (movement, electrode pop or blink)",
 	metrics.RuleFlat:      "signal flat",

@@ -153,14 +153,14 @@ func TestMergeCarriesEveryColumn(t *testing.T) {
 	x := []byte("recording x")
 	saveWithFile(t, part, sampleVisit("MC-0001", "2024-03-05", x, 1), x)
 	for _, st := range []*Store{part, into} {
-		for _, q := range []string{`ALTER TABLE markers ADD COLUMN interval_low REAL`,
+		for _, q := range []string{`ALTER TABLE markers ADD COLUMN extra_low REAL`,
 			`CREATE TABLE marker_notes (id INTEGER PRIMARY KEY, marker_id INTEGER NOT NULL REFERENCES markers (id) ON DELETE CASCADE, note TEXT NOT NULL) STRICT`} {
 			if _, err := st.w.ExecContext(ctx, q); err != nil {
 				t.Fatal(err)
 			}
 		}
 	}
-	if _, err := part.w.ExecContext(ctx, `UPDATE markers SET interval_low = value - 0.5`); err != nil {
+	if _, err := part.w.ExecContext(ctx, `UPDATE markers SET extra_low = value - 0.5`); err != nil {
 		t.Fatal(err)
 	}
 	if _, err := part.w.ExecContext(ctx, `INSERT INTO marker_notes (marker_id, note) SELECT id, 'note of ' || name || '/' || region || '/' || state FROM markers`); err != nil {
@@ -169,7 +169,7 @@ func TestMergeCarriesEveryColumn(t *testing.T) {
 	if _, err := into.Merge(ctx, []*Store{part}, testMerge); err != nil {
 		t.Fatal(err)
 	}
-	q := `SELECT count(*), coalesce(sum(abs(m.interval_low - (m.value - 0.5)) < 1e-12), 0),
+	q := `SELECT count(*), coalesce(sum(abs(m.extra_low - (m.value - 0.5)) < 1e-12), 0),
 		coalesce(sum(n.note = 'note of ' || m.name || '/' || m.region || '/' || m.state), 0)
 		FROM markers m JOIN marker_notes n ON n.marker_id = m.id`
 	var want, gotLow, gotNote int

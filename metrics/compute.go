@@ -76,6 +76,11 @@ func analyse(rec *ingest.Recording, s Settings) (*analysis, error) {
 		return nil, err
 	}
 	a.markBadChannels()
+	if s.Windows != nil {
+		a.windowsV2()
+		a.runs = a.runsV2()
+		return a, nil
+	}
 	commonAverage(a.data, a.good, a.n, a.workers)
 	a.epochs(rec)
 	a.spectra()
@@ -121,6 +126,15 @@ type analysis struct {
 	psd     map[ingest.EyeState][][]float64
 	primary ingest.EyeState // the state the "closed" markers use
 	fits    map[fitKey]fitResult
+
+	// v2 holds the per-channel, per-window decisions and the regional
+	// segment spectra of settings v2 (nil under v1).
+	v2 *windowAnalysis
+	// override, when set, replaces region (the bootstrap's resampled
+	// spectra); lean skips what a resample does not need (the
+	// distinctness fits of the peak searches and the drowsiness index).
+	override func(st ingest.EyeState, region string) ([]float64, string)
+	lean     bool
 }
 
 func prepare(rec *ingest.Recording, s Settings) (*analysis, error) {
@@ -450,6 +464,10 @@ func (a *analysis) quality() Quality {
 	}
 	for _, c := range a.usedChannels() {
 		q.UsedChannels = append(q.UsedChannels, a.names[c])
+	}
+	if a.v2 != nil {
+		a.qualityV2(&q)
+		return q
 	}
 	rejected := 0
 	for _, p := range a.periods {

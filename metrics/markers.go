@@ -56,6 +56,13 @@ func (a *analysis) pdrOf(st ingest.EyeState, region string, cache map[fitKey]fit
 	if why != "" {
 		return peak{}, why
 	}
+	if a.lean {
+		hz, ok := peakFrequency(a.freqs, spec, a.s.Peak)
+		if !ok {
+			return peak{}, "no peak in the resample"
+		}
+		return peak{Found: true, Distinct: true, Hz: hz}, ""
+	}
 	fit, err := a.fitOf(st, region, spec, cache)
 	if err != nil {
 		return peak{}, fmt.Sprintf("aperiodic fit failed: %v", err)
@@ -220,7 +227,11 @@ func (a *analysis) markers() []Marker {
 		}
 	}
 
-	// Drowsiness index.
+	// Drowsiness index (its interval is analytic: not resampled).
+	if a.lean {
+		a.fits = cache
+		return m.list
+	}
 	if d, known, why := a.drowsinessIndex(); known {
 		m.ok(DrowsinessIndex, RegionPosterior, st, d, UnitShare)
 	} else {
@@ -240,6 +251,9 @@ func (a *analysis) drowsiness() (float64, bool) {
 // alpha power drops below DropoutFraction × the ReferenceQuantile of that
 // power over the same epochs (DrowsinessSettings).
 func (a *analysis) drowsinessIndex() (float64, bool, string) {
+	if a.v2 != nil {
+		return a.drowsinessV2()
+	}
 	st := a.primary
 	if why := a.stateUsable(st); why != "" {
 		return 0, false, why

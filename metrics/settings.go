@@ -246,6 +246,9 @@ type Settings struct {
 	Ocular *OcularSettings `json:"ocular,omitempty"`
 	// Uncertainty is how every marker's interval is made (nil: none).
 	Uncertainty *UncertaintySettings `json:"uncertainty,omitempty"`
+	// Windows are the per-channel, per-window and per-region artefact
+	// decisions (nil: V1's 4-s epochs judged on every channel at once).
+	Windows *WindowSettings `json:"windows,omitempty"`
 }
 
 // V1 returns processing settings version 1. Sources: DESIGN.md for the
@@ -336,6 +339,10 @@ func V2() Settings {
 	s.Version = "2"
 	s.Ocular = defaultOcular()
 	s.Uncertainty = defaultUncertainty()
+	s.Windows = defaultWindows()
+	// Welch segments start at every 1-s window (WindowSettings), so a
+	// blink costs its window, not a whole segment step of 2 s.
+	s.Welch.Overlap = 0.75
 	return s
 }
 

@@ -55,6 +55,7 @@ func Compute(rec *ingest.Recording, s Settings) (*Result, error) {
 	}
 	res.Quality = a.quality()
 	res.Markers = a.markers()
+	a.intervals(res.Markers)
 	if dk, known := a.drowsiness(); known {
 		res.Quality.Drowsiness, res.Quality.DrowsinessKnown = dk, true
 	}
@@ -135,6 +136,7 @@ type analysis struct {
 	// distinctness fits of the peak searches and the drowsiness index).
 	override func(st ingest.EyeState, region string) ([]float64, string)
 	lean     bool
+	seed     [2]uint64 // the bootstrap's PCG seed (seedOf)
 }
 
 func prepare(rec *ingest.Recording, s Settings) (*analysis, error) {
@@ -188,6 +190,9 @@ func prepare(rec *ingest.Recording, s Settings) (*analysis, error) {
 		a.data = append(a.data, ch.Samples[:a.nIn])
 	}
 	a.workers = max(1, min(runtime.GOMAXPROCS(0), maxWorkers, len(chans)))
+	if s.Uncertainty != nil {
+		a.seed[0], a.seed[1] = seedOf(rec, a.data)
+	}
 	a.segsIn = segmentsOf(rec, a.nIn)
 	// The segments after decimation: segment g keeps its samples
 	// First + k·q, k < ceil(Count/q), packed one after the other.

@@ -176,3 +176,22 @@ func TestV1HashPinned(t *testing.T) {
 		t.Errorf("V1().Hash() = %s, want the pinned %s (a changed setting needs a new version)", got, v1Hash)
 	}
 }
+
+// v2Hash pins version 2 in the same way. V2 is what Current returns, so a
+// changed number here is a new version too.
+const v2Hash = "fbc292a54d97ef2878b1eca319f27943020ae6868527f2ec2a94cbf13c8437fc"
+
+func TestV2HashPinned(t *testing.T) {
+	if got := V2().Hash(); got != v2Hash {
+		t.Errorf("V2().Hash() = %s, want the pinned %s (a changed setting needs a new version)", got, v2Hash)
+	}
+	if v1, v2 := V1(), V2(); v1.Hash() == v2.Hash() || v2.Version == v1.Version {
+		t.Error("V2 must differ from V1 in version and hash")
+	}
+	for _, v := range []string{"1", "2"} {
+		s, ok := ByVersion(v)
+		if !ok || s.Version != v {
+			t.Errorf("ByVersion(%q) = %q, %v", v, s.Version, ok)
+		}
+	}
+}

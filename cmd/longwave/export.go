@@ -93,7 +93,7 @@ is kept.
 				if err != nil {
 					return err
 				}
-				settings := metrics.V1()
+				settings := metrics.Current()
 				rows, err := exportRows(courses, settings.Version, settings.Hash(), *deid)
 				if err != nil {
 					return err

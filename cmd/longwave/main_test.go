@@ -124,7 +124,7 @@ func TestMarkersCommand(t *testing.T) {
 	if err := json.Unmarshal([]byte(out), &got); err != nil {
 		t.Fatalf("output is not one JSON object: %v", err)
 	}
-	if got.Settings.Version != metrics.V1().Version || got.Settings.Hash != metrics.V1().Hash() {
+	if got.Settings.Version != metrics.Current().Version || got.Settings.Hash != metrics.Current().Hash() {
 		t.Errorf("settings = %+v", got.Settings)
 	}
 	if got.Conditions["sample_rate"] != 250.0 || got.Conditions["quality"] == nil {

@@ -93,14 +93,14 @@ func TestBuildShowsEveryRule(t *testing.T) {
 	if len(pats) != 24 {
 		t.Fatalf("patients stored: %d, want 24", len(pats))
 	}
-	v1 := metrics.V1()
+	cur := metrics.Current()
 	fired := map[string]int{}
 	for _, ps := range pats {
 		visits, err := st.PatientVisits(ctx, ps.Patient.ID)
 		if err != nil {
 			t.Fatal(err)
 		}
-		c := trends.BuildCourse(ps.Patient, visits, trends.CourseOptions{SettingsVersion: v1.Version, SettingsHash: v1.Hash(), Today: planDay})
+		c := trends.BuildCourse(ps.Patient, visits, trends.CourseOptions{SettingsVersion: cur.Version, SettingsHash: cur.Hash(), Today: planDay})
 		for _, v := range c.Visits {
 			for _, f := range v.Flags {
 				fired[f.Rule]++

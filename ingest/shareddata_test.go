@@ -27,10 +27,7 @@ func sharedFile(t *testing.T, rel, sha string, opt Options) (*Recording, string)
 	path := filepath.Join(sharedDataDir(t), rel)
 	b, err := os.ReadFile(path)
 	if err != nil {
-		if os.Getenv("LONGWAVE_REQUIRE_DATA") == "1" {
-			t.Fatalf("%s: %v (LONGWAVE_REQUIRE_DATA=1)", rel, err)
-		}
-		t.Skipf("%s: %v (needs the shared data file)", rel, err)
+		testenv.Missing(t, testenv.RequireDataVar, "%s: %v (needs the shared data file)", rel, err)
 	}
 	sum := sha256.Sum256(b)
 	if got := hex.EncodeToString(sum[:]); got != sha {

@@ -77,6 +77,9 @@ func analyse(rec *ingest.Recording, s Settings) (*analysis, error) {
 		return nil, err
 	}
 	a.markBadChannels()
+	if err := a.correctOcular(rec); err != nil {
+		return nil, err
+	}
 	if s.Windows != nil {
 		a.windowsV2()
 		a.runs = a.runsV2()
@@ -136,7 +139,8 @@ type analysis struct {
 	// distinctness fits of the peak searches and the drowsiness index).
 	override func(st ingest.EyeState, region string) ([]float64, string)
 	lean     bool
-	seed     [2]uint64 // the bootstrap's PCG seed (seedOf)
+	seed     [2]uint64     // the bootstrap's PCG seed (seedOf)
+	ocular   *OcularReport // what correctOcular did (nil: not asked for)
 }
 
 func prepare(rec *ingest.Recording, s Settings) (*analysis, error) {
@@ -466,6 +470,7 @@ func (a *analysis) quality() Quality {
 		CleanSeconds:        map[ingest.EyeState]float64{},
 		EpochsTotal:         map[ingest.EyeState]int{},
 		RejectedByRule:      a.rules,
+		Ocular:              a.ocular,
 	}
 	for _, c := range a.usedChannels() {
 		q.UsedChannels = append(q.UsedChannels, a.names[c])

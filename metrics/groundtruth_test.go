@@ -162,6 +162,32 @@ func expectedRegion(s synth.Spec, region []string, st ingest.EyeState, b Band) f
 	return sum / float64(len(region))
 }
 
+// attenuationSpec is the recording of TestAttenuationGroundTruth: 4
+// minutes in alternating 30-s blocks of eyes closed and open (the rhythm's
+// slow amplitude modulation, periods of 4–17 s, then averages out between
+// the states instead of favouring one), a strong rhythm (600 µV² at O1)
+// attenuated by att, no blinks or muscle bursts (the epochs they cost are
+// random holes in each state, and the rhythm's ±50 % amplitude modulation
+// sampled through random holes scatters the state's mean alpha power by
+// several per cent).
+func attenuationSpec(seed int, att float64) synth.Spec {
+	s := synth.Default()
+	s.Seed = uint64(7000 + 10*seed + int(10*att))
+	s.Duration = 240
+	s.Periods = nil
+	for b := 0; b < 8; b++ {
+		st := ingest.EyesClosed
+		if b%2 == 1 {
+			st = ingest.EyesOpen
+		}
+		s.Periods = append(s.Periods, ingest.Period{State: st, Start: float64(30 * b), End: float64(30*b + 30)})
+	}
+	s.AlphaPower = 600
+	s.AlphaOpenAttenuation = att
+	s.BlinksPerMinute, s.MuscleBurstsPerMinute = 0, 0
+	return s
+}
+
 // TestAttenuationGroundTruth: alpha attenuation on eye opening of 0, 0.3,
 // 0.6 and 0.9, five seeds each. The measured 1 − EO/EC band-power ratio is
 // checked against the model's band-power attenuation (the alpha band also
@@ -176,27 +202,7 @@ func TestAttenuationGroundTruth(t *testing.T) {
 			for seed := 1; seed <= 5; seed++ {
 				t.Run(fmt.Sprintf("a%.1f/seed%d", att, seed), func(t *testing.T) {
 					t.Parallel()
-					s := synth.Default()
-					s.Seed = uint64(7000 + 10*seed + int(10*att))
-					// Alternating 30 s blocks: the rhythm's slow amplitude
-					// modulation (periods of 4–17 s) then averages out
-					// between the states instead of favouring one.
-					s.Duration = 240
-					s.Periods = nil
-					for b := 0; b < 8; b++ {
-						st := ingest.EyesClosed
-						if b%2 == 1 {
-							st = ingest.EyesOpen
-						}
-						s.Periods = append(s.Periods, ingest.Period{State: st, Start: float64(30 * b), End: float64(30*b + 30)})
-					}
-					s.AlphaPower = 600
-					s.AlphaOpenAttenuation = att
-					// Blinks off: the epochs they cost are random holes in
-					// each state, and the rhythm's ±50 % amplitude
-					// modulation sampled through random holes scatters the
-					// state's mean alpha power by several per cent.
-					s.BlinksPerMinute, s.MuscleBurstsPerMinute = 0, 0
+					s := attenuationSpec(seed, att)
 					res := mustCompute(t, mustRecording(t, s, ingest.Options{}))
 					m := marker(t, res, AlphaReactivity, RegionPosterior, ingest.EyesOpen)
 					if !m.Computable {

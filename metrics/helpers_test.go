@@ -50,10 +50,10 @@ func moduleRoot(tb testing.TB) string {
 	return testenv.ModuleRoot(tb)
 }
 
-// sharedData returns ../shared/data/<sub> beside the module root, or skips
-// the test with a message naming what it needs (fails under
+// sharedData returns ../shared/data/<parts…> beside the module root, or
+// skips the test with a message naming what it needs (fails under
 // LONGWAVE_REQUIRE_DATA=1).
-func sharedData(tb testing.TB, sub string) string {
+func sharedData(tb testing.TB, parts ...string) string {
 	tb.Helper()
-	return testenv.SharedData(tb, sub)
+	return testenv.SharedData(tb, parts...)
 }

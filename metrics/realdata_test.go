@@ -2,11 +2,11 @@ package metrics
 
 import (
 	"fmt"
-	"os"
 	"path/filepath"
 	"testing"
 
 	"longwave/ingest"
+	"longwave/ingest/testenv"
 )
 
 // Real recordings of ../shared/data (issue 3 point 8): healthy adults.
@@ -45,15 +45,12 @@ func readRun(t *testing.T, path string, st ingest.EyeState) *ingest.Recording {
 // run R01 joined with ingest.Combine: PDR in 8–12.5 Hz, and eyes-open
 // posterior alpha power below eyes-closed.
 func TestRealEEGMMIDB(t *testing.T) {
-	dir := sharedData(t, "eegmmidb")
+	sharedData(t, "eegmmidb")
 	withPDR, withRatio := 0, 0
 	for _, sub := range eegmmidbSubjects {
 		t.Run(sub, func(t *testing.T) {
-			closedPath := filepath.Join(dir, sub+"R02.edf")
-			openPath := filepath.Join(dir, sub+"R01.edf")
-			if _, err := os.Stat(closedPath); err != nil {
-				t.Skipf("needs %s: %v", closedPath, err)
-			}
+			closedPath := sharedData(t, "eegmmidb", sub+"R02.edf")
+			openPath := sharedData(t, "eegmmidb", sub+"R01.edf")
 			closed := readRun(t, closedPath, ingest.EyesClosed)
 			open := readRun(t, openPath, ingest.EyesOpen)
 			rec, err := ingest.Combine(closed, open)
@@ -108,7 +105,7 @@ func TestRealEEGMAT(t *testing.T) {
 	dir := sharedData(t, "eegmat")
 	files, _ := filepath.Glob(filepath.Join(dir, "*_1.edf"))
 	if len(files) == 0 {
-		t.Skipf("needs eegmat *_1.edf files in %s", dir)
+		testenv.Missing(t, testenv.RequireDataVar, "needs eegmat *_1.edf files in %s", dir)
 	}
 	for _, f := range files {
 		name := filepath.Base(f)

@@ -25,11 +25,21 @@ import (
 // The first writes <case>.mask.json, the second <case>.reference.json.
 var updateReference = flag.Bool("update-reference", false, "write the epoch masks for the Python reference")
 
-// Tolerances of issue 3 point 8.
+// Tolerances: what the arithmetic supports, not what the markers need
+// (issue 9 point 9). Both sides run the same stages in float64 on the same
+// samples and epochs; the only systematic difference is that longwave keeps
+// the filtered, referenced signal as float32 (half a float32 step is
+// 2⁻²⁴ ≈ 6e-8 of a sample), which averaged over a Welch band leaves about
+// 2e-8 relative on band powers and theta/alpha and about 1e-7 Hz on the
+// interpolated peak (the largest seen on the five cases, logged by the
+// test). The limits sit 50–100 times above that, so a changed rounding
+// order or an FMA platform passes, while any real change (a window, a
+// normalisation, one more or one fewer segment, a different epoch, one
+// Welch bin of 0.25 Hz) is 1e-4 or more and fails.
 const (
-	refPDRToleranceHz   = 0.25
-	refBandRelTolerance = 0.02
-	refRatioTolerance   = 0.05
+	refPDRToleranceHz   = 1e-5 // Hz
+	refBandRelTolerance = 1e-6 // relative
+	refRatioTolerance   = 1e-6 // relative: two band powers' errors
 )
 
 type refFile struct {
@@ -136,9 +146,7 @@ func TestReferenceAgreement(t *testing.T) {
 	for _, c := range refCases {
 		t.Run(c.name, func(t *testing.T) {
 			for _, f := range c.files {
-				if _, err := os.Stat(filepath.Join(data, f.Path)); err != nil {
-					t.Skipf("needs %s: %v", f.Path, err)
-				}
+				sharedData(t, f.Path)
 			}
 			rec := loadRefCase(t, data, c)
 			a, err := analyse(rec, V1())
@@ -172,18 +180,18 @@ func TestReferenceAgreement(t *testing.T) {
 						rel := math.Abs(band.got/band.want - 1)
 						worstBand = math.Max(worstBand, rel)
 						if rel > refBandRelTolerance {
-							t.Errorf("%s %s %s power: got %.4g µV², reference %.4g (%.2f %%), want within %g %%",
-								st, region, band.name, band.got, band.want, 100*rel, 100*refBandRelTolerance)
+							t.Errorf("%s %s %s power: got %.9g µV², reference %.9g (%.2g relative), want within %g",
+								st, region, band.name, band.got, band.want, rel, refBandRelTolerance)
 						}
 					}
 					worstPeak = math.Max(worstPeak, math.Abs(got.PeakHz-want.PeakHz))
 					rel := math.Abs(got.ThetaAlpha/want.ThetaAlpha - 1)
 					worstRatio = math.Max(worstRatio, rel)
 					if rel > refRatioTolerance {
-						t.Errorf("%s %s theta/alpha: got %.4f, reference %.4f", st, region, got.ThetaAlpha, want.ThetaAlpha)
+						t.Errorf("%s %s theta/alpha: got %.9g, reference %.9g (%.2g relative), want within %g", st, region, got.ThetaAlpha, want.ThetaAlpha, rel, refRatioTolerance)
 					}
 					if (got.PeakHz == 0) != (want.PeakHz == 0) || math.Abs(got.PeakHz-want.PeakHz) > refPDRToleranceHz {
-						t.Errorf("%s %s peak: got %.3f Hz, reference %.3f Hz, want within %g Hz", st, region, got.PeakHz, want.PeakHz, refPDRToleranceHz)
+						t.Errorf("%s %s peak: got %.9g Hz, reference %.9g Hz, want within %g Hz", st, region, got.PeakHz, want.PeakHz, refPDRToleranceHz)
 					}
 					if region == RegionPosterior {
 						t.Logf("%s posterior: peak Go %.4f / ref %.4f Hz; alpha Go %.4g / ref %.4g µV²; theta/alpha Go %.4f / ref %.4f",

@@ -133,6 +133,9 @@ type Quality struct {
 	// was left out of while the window was kept for the others.
 	Regions               []RegionTime       `json:"regions,omitempty"`
 	ChannelWindowsLeftOut map[string]float64 `json:"channel_windows_left_out,omitempty"`
+	// Ocular is what the ocular correction did (settings v2 onward; nil
+	// when the settings have none).
+	Ocular *OcularReport `json:"ocular,omitempty"`
 }
 
 // Spectrum is a display spectrum of one state over 1–45 Hz at the Welch

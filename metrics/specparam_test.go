@@ -30,17 +30,25 @@ const (
 	truthTol = 0.05
 )
 
+// goldenSpecSettings are the fit settings as the golden scripts write them.
+type goldenSpecSettings struct {
+	FreqLo        float64 `json:"freq_lo"`
+	FreqHi        float64 `json:"freq_hi"`
+	PeakWidthMin  float64 `json:"peak_width_min"`
+	PeakWidthMax  float64 `json:"peak_width_max"`
+	PeakThreshold float64 `json:"peak_threshold"`
+	MinPeakHeight float64 `json:"min_peak_height"`
+	MaxPeaks      int     `json:"max_peaks"`
+}
+
+func (s goldenSpecSettings) params() SpecParamSettings {
+	return SpecParamSettings{FreqLo: s.FreqLo, FreqHi: s.FreqHi, PeakWidthMin: s.PeakWidthMin, PeakWidthMax: s.PeakWidthMax,
+		PeakThreshold: s.PeakThreshold, MinPeakHeight: s.MinPeakHeight, MaxPeaks: s.MaxPeaks}
+}
+
 type specGolden struct {
-	Settings struct {
-		FreqLo        float64 `json:"freq_lo"`
-		FreqHi        float64 `json:"freq_hi"`
-		PeakWidthMin  float64 `json:"peak_width_min"`
-		PeakWidthMax  float64 `json:"peak_width_max"`
-		PeakThreshold float64 `json:"peak_threshold"`
-		MinPeakHeight float64 `json:"min_peak_height"`
-		MaxPeaks      int     `json:"max_peaks"`
-	} `json:"settings"`
-	Cases []struct {
+	Settings goldenSpecSettings `json:"settings"`
+	Cases    []struct {
 		TrueExponent float64      `json:"true_exponent"`
 		TruePeaks    [][3]float64 `json:"true_peaks"` // centre Hz, height, σ Hz
 		Freqs        []float64    `json:"freqs"`
@@ -53,11 +61,7 @@ type specGolden struct {
 	} `json:"cases"`
 }
 
-func (g specGolden) settings() SpecParamSettings {
-	s := g.Settings
-	return SpecParamSettings{FreqLo: s.FreqLo, FreqHi: s.FreqHi, PeakWidthMin: s.PeakWidthMin, PeakWidthMax: s.PeakWidthMax,
-		PeakThreshold: s.PeakThreshold, MinPeakHeight: s.MinPeakHeight, MaxPeaks: s.MaxPeaks}
-}
+func (g specGolden) settings() SpecParamSettings { return g.Settings.params() }
 
 // TestFitStagesGolden checks the model and the optimiser: the stages of
 // FitSpectrum after the peak search, started from the true peaks, against

@@ -18,6 +18,8 @@ import (
 	"github.com/chromedp/cdproto/network"
 	"github.com/chromedp/cdproto/page"
 	"github.com/chromedp/chromedp"
+
+	"longwave/ingest/testenv"
 )
 
 // browserPath finds Chromium: $LONGWAVE_BROWSER, else /usr/bin/chromium
@@ -38,10 +40,7 @@ func browserPath(t *testing.T) string {
 	if p, err := exec.LookPath("chromium"); err == nil {
 		return p
 	}
-	if os.Getenv("LONGWAVE_REQUIRE_BROWSER") == "1" {
-		t.Fatal("LONGWAVE_REQUIRE_BROWSER=1 but no Chromium found (apt-get install chromium)")
-	}
-	t.Skip("no Chromium found and LONGWAVE_BROWSER unset: the browser test needs Debian's chromium")
+	testenv.Missing(t, testenv.RequireBrowserVar, "no Chromium found and LONGWAVE_BROWSER unset: the browser test needs Debian's chromium (apt-get install chromium)")
 	return ""
 }
 
@@ -86,7 +85,7 @@ func loopback(raw string) bool {
 // CSV download, and the hostile fixtures, with no dialog ever opening.
 func TestBrowser(t *testing.T) {
 	exe := browserPath(t)
-	if testing.Short() && os.Getenv("LONGWAVE_REQUIRE_BROWSER") != "1" {
+	if testing.Short() && os.Getenv(testenv.RequireBrowserVar) != "1" {
 		t.Skip("browser test skipped with -short")
 	}
 	e := newEnv(t, "", Config{})

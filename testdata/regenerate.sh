@@ -13,6 +13,12 @@ echo "-- MNE's EDF/BDF reader on ../shared/data and our synthetic files"
 echo "-- scipy filters, Welch, Savitzky-Golay, curve_fit"
 "$py" testdata/metrics/make_golden.py
 
+echo "-- fooof 1.1.1 (../shared/reference) on the spectral-parameterisation spectra"
+"$py" testdata/metrics/make_fooof_golden.py
+
+echo "-- MNE's EOG regression (ocular correction)"
+"$py" testdata/metrics/make_ocular_golden.py
+
 echo "-- epoch masks from the Go pipeline, then the MNE + scipy reference markers"
 go test ./metrics/ -count=1 -run '^TestReferenceAgreement$' -update-reference >/dev/null
 "$py" testdata/metrics/reference/reference_markers.py

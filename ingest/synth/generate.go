@@ -4,6 +4,7 @@ import (
 	"math"
 	"math/rand/v2"
 	"runtime"
+	"slices"
 	"sync"
 
 	"gonum.org/v1/gonum/dsp/fourier"
@@ -14,8 +15,8 @@ import (
 // Rendering is a Spec turned into digital samples, exactly as Write stores
 // them: what a round-trip test compares a decoder against.
 type Rendering struct {
-	// Channels are the 10-10 names (Spec.Channels); Labels the header labels
-	// in the chosen spelling.
+	// Channels are the 10-10 names (Spec.Channels) followed by the EOG
+	// labels (Spec.EOG); Labels the header labels in the chosen spelling.
 	Channels, Labels []string
 	SampleRate       float64
 	Records          int
@@ -42,7 +43,8 @@ func (r *Rendering) Microvolts(c, i int) float64 {
 	return r.Offset + r.Gain*float64(r.Digital[c][i])
 }
 
-// Artefact sizes (synthetic, chosen to look like routine recordings).
+// Artefact sizes (synthetic, chosen to look like routine recordings); the
+// amplitude and burst-length ranges are the defaults of the Spec fields.
 const (
 	blinkMinSeconds, blinkMaxSeconds   = 0.2, 0.4   // raised-cosine blink length
 	blinkMinUV, blinkMaxUV             = 80.0, 200  // peak at Fp1/Fp2, positive
@@ -102,17 +104,27 @@ func Render(s Spec) (*Rendering, error) {
 			lineSin[k], lineCos[k] = h*sn, h*cs
 		}
 	}
-	blinks := blinkTrain(n, fs, s.BlinksPerMinute, newRand(s.Seed, streamBlinks))
-	muscle := muscleTrain(n, fs, s.MuscleBurstsPerMinute, m, newRand(s.Seed, streamMuscle))
+	blinks := blinkTrain(n, fs, s, newRand(s.Seed, streamBlinks))
+	muscle := muscleTrain(n, fs, s, m, newRand(s.Seed, streamMuscle))
+
+	all := append(slices.Clip(s.Channels), s.EOG...)
+	eog := make(map[string]bool, len(s.EOG))
+	for _, c := range s.EOG {
+		eog[c] = true
+	}
 
 	r := &Rendering{
-		Channels: append([]string(nil), s.Channels...), SampleRate: fs,
+		Channels: all, SampleRate: fs,
 		Records: m.records, SamplesPerRecord: m.perRec, RecordDuration: s.RecordDuration,
-		Digital:    make([][]int32, len(s.Channels)),
+		Digital:    make([][]int32, len(all)),
 		DigitalMin: dmin, DigitalMax: dmax, PhysicalMin: pminText, PhysicalMax: pmaxText,
 		Gain: gain, Offset: offset,
 	}
-	for _, c := range s.Channels {
+	for _, c := range all {
+		if eog[c] {
+			r.Labels = append(r.Labels, spellEOG(c, s.Spelling))
+			continue
+		}
 		r.Labels = append(r.Labels, spell(c, s.Spelling))
 	}
 	if s.hasAnnotations() {
@@ -120,10 +132,10 @@ func Render(s Spec) (*Rendering, error) {
 	}
 
 	rho := s.SharedAperiodic
-	clipped := make([]int, len(s.Channels))
+	clipped := make([]int, len(all))
 	jobs := make(chan int)
 	var wg sync.WaitGroup
-	workers := min(runtime.GOMAXPROCS(0), len(s.Channels))
+	workers := min(runtime.GOMAXPROCS(0), len(all))
 	for range workers {
 		wg.Add(1)
 		go func() {
@@ -131,7 +143,7 @@ func Render(s Spec) (*Rendering, error) {
 			var plan *noisePlan
 			x := make([]float64, n)
 			for ci := range jobs {
-				c := s.Channels[ci]
+				c := all[ci]
 				digital := make([]int32, n)
 				r.Digital[ci] = digital
 				if m.flat[c] {
@@ -147,19 +159,25 @@ func Render(s Spec) (*Rendering, error) {
 						plan = newNoisePlan(nfft)
 					}
 					wb := betaWeights.of(c)
-					wb2 := wb * wb
+					wb2, wp2 := wb*wb, 1.0
+					if eog[c] {
+						wb2, wp2 = 0, eogPrivateGain*eogPrivateGain
+					}
 					shapedNoise(x, plan, newRand(s.Seed, labelStream(c, streamPrivate)), fs,
-						func(k int) float64 { return (1-rho)*apBins[k] + wb2*betaBins[k] })
+						func(k int) float64 { return wp2*(1-rho)*apBins[k] + wb2*betaBins[k] })
 				}
-				wa, wt := alphaWeights.of(c), thetaWeights.of(c)
+				ws, wa, wt := 1.0, alphaWeights.of(c), thetaWeights.of(c)
 				wbl, wm := blinkWeights.of(c), muscleWeights.of(c)
+				if eog[c] {
+					ws, wa, wt, wbl, wm = eogSharedGain, 0, 0, eogBlinkWeight[c], 0
+				}
 				amp, sinPhi, cosPhi := 0.0, 0.0, 0.0
 				if lineSin != nil {
 					amp = m.lineAmp[c]
 					sinPhi, cosPhi = math.Sincos(m.linePhi[c])
 				}
 				for i := range x {
-					v := x[i] + shared[i] + wa*alphaWave[i] + wt*thetaWave[i] + wbl*blinks[i] + wm*muscle[i]
+					v := x[i] + ws*shared[i] + wa*alphaWave[i] + wt*thetaWave[i] + wbl*blinks[i] + wm*muscle[i]
 					if lineSin != nil { // sin(ωt+φ) = sin ωt·cos φ + cos ωt·sin φ
 						v += amp * (lineSin[i]*cosPhi + lineCos[i]*sinPhi)
 					}
@@ -172,7 +190,7 @@ func Render(s Spec) (*Rendering, error) {
 			}
 		}()
 	}
-	for ci := range s.Channels {
+	for ci := range all {
 		jobs <- ci
 	}
 	close(jobs)
@@ -293,17 +311,34 @@ func poissonOnsets(total, perMinute float64, rng *rand.Rand) []float64 {
 	return out
 }
 
-// blinkTrain returns the blink waveform at weight 1: positive raised-cosine
-// bumps (Fp1/Fp2 positive, as the eyeball's upward turn on closing makes them;
-// common practice).
-func blinkTrain(n int, fs, perMinute float64, rng *rand.Rand) []float64 {
-	out := make([]float64, n)
-	for _, t0 := range poissonOnsets(float64(n)/fs, perMinute, rng) {
+// blink is one blink of the train: its first sample, length in samples and
+// peak in µV at weight 1.
+type blink struct {
+	start, length int
+	peak          float64
+}
+
+// blinkEvents draws the blinks of s: Poisson onsets, then per blink a
+// length uniform in [blinkMinSeconds, blinkMaxSeconds) and a peak uniform in
+// the spec's range.
+func blinkEvents(n int, fs float64, s Spec, rng *rand.Rand) []blink {
+	lo, hi := s.blinkRange()
+	var out []blink
+	for _, t0 := range poissonOnsets(float64(n)/fs, s.BlinksPerMinute, rng) {
 		length := int((blinkMinSeconds + (blinkMaxSeconds-blinkMinSeconds)*rng.Float64()) * fs)
-		amp := blinkMinUV + (blinkMaxUV-blinkMinUV)*rng.Float64()
-		start := int(t0 * fs)
-		for j := 0; j < length && start+j < n; j++ {
-			out[start+j] += amp * 0.5 * (1 - math.Cos(2*math.Pi*float64(j)/float64(length)))
+		out = append(out, blink{start: int(t0 * fs), length: length, peak: lo + (hi-lo)*rng.Float64()})
+	}
+	return out
+}
+
+// blinkTrain returns the blink waveform at weight 1: positive raised-cosine
+// bumps peak·(1 − cos(2πj/length))/2 (Fp1/Fp2 positive, as the eyeball's
+// upward turn on closing makes them; common practice).
+func blinkTrain(n int, fs float64, s Spec, rng *rand.Rand) []float64 {
+	out := make([]float64, n)
+	for _, b := range blinkEvents(n, fs, s, rng) {
+		for j := 0; j < b.length && b.start+j < n; j++ {
+			out[b.start+j] += b.peak * 0.5 * (1 - math.Cos(2*math.Pi*float64(j)/float64(b.length)))
 		}
 	}
 	return out
@@ -312,9 +347,9 @@ func blinkTrain(n int, fs, perMinute float64, rng *rand.Rand) []float64 {
 // muscleTrain returns the muscle-burst waveform at weight 1: band-limited
 // Gaussian noise (flat density in 20–80 Hz, capped at 0.45·fs, times the
 // low-pass) under a Hann envelope.
-func muscleTrain(n int, fs, perMinute float64, m *model, rng *rand.Rand) []float64 {
+func muscleTrain(n int, fs float64, s Spec, m *model, rng *rand.Rand) []float64 {
 	out := make([]float64, n)
-	onsets := poissonOnsets(float64(n)/fs, perMinute, rng)
+	onsets := poissonOnsets(float64(n)/fs, s.MuscleBurstsPerMinute, rng)
 	if len(onsets) == 0 {
 		return out
 	}
@@ -322,9 +357,11 @@ func muscleTrain(n int, fs, perMinute float64, m *model, rng *rand.Rand) []float
 	if hi <= lo {
 		lo, hi = 0.25*fs, 0.45*fs
 	}
+	minS, maxS := s.muscleLength()
+	minUV, maxUV := s.muscleRange()
 	for _, t0 := range onsets {
-		length := max(int((muscleMinSeconds+(muscleMaxSeconds-muscleMinSeconds)*rng.Float64())*fs), 4)
-		rms := muscleMinUV + (muscleMaxUV-muscleMinUV)*rng.Float64()
+		length := max(int((minS+(maxS-minS)*rng.Float64())*fs), 4)
+		rms := minUV + (maxUV-minUV)*rng.Float64()
 		nfft := fastLength(length)
 		plan := newNoisePlan(nfft)
 		// unit variance: density 1/(hi − lo) over the band.

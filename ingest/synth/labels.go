@@ -27,3 +27,13 @@ func spell(label string, s Spelling) string {
 		return label
 	}
 }
+
+// spellEOG writes an EOG label: with the EDF+ type prefix in the typed-ref
+// spelling ("EOG VEOG"), else as it is ("VEOG"); the ingest label normaliser
+// reads both as an EOG channel.
+func spellEOG(label string, s Spelling) string {
+	if s == SpellTypedRef {
+		return "EOG " + label
+	}
+	return label
+}

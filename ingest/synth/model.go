@@ -49,7 +49,17 @@ import (
 // every period), √(1 − AlphaOpenAttenuation) with eyes open, 0 in the
 // drowsiness dropout stretches. Line noise is L_c(t) = a_c·H(fL)·sin(2π fL t
 // + φ_c), a_c = LineAmplitude·u_c, u_c ∈ [0.5, 1.5). Blinks and muscle bursts
-// are transients meant to be rejected; they are left out of ExpectedBandPower.
+// are transients to be corrected or rejected; they are left out of
+// ExpectedBandPower, so the blink-free file of the same seed is the ground
+// truth of a correction.
+//
+// An EOG channel e (Spec.EOG) is
+//
+//	x_e(t) = 0.2·B_shared(t) + 0.5·B_e(t) + L_e(t) + wblink(e)·blinks(t)
+//
+// with B_e its own background of density (1−ρ)·S_ap and wblink 1.6 (VEOG) or
+// 0.15 (HEOG): it carries the blink source and a little of the brain's
+// background, as a real EOG derivation does.
 
 // AperiodicFloorHz is f0 of the aperiodic density: below it the density is
 // flat, so the background's variance stays finite for any exponent.
@@ -98,6 +108,18 @@ var (
 		"T7": 1, "T8": 1, "F7": 0.7, "F8": 0.7, "P7": 0.6, "P8": 0.6,
 		"Fp1": 0.3, "Fp2": 0.3, "O1": 0.2, "O2": 0.2,
 	})
+)
+
+// EOG channels (Spec.EOG): the blink's weight at each, relative to Fp1/Fp2,
+// and the amplitude gains of the shared and of the channel's own aperiodic
+// background (synthetic, invented for ground truth: a vertical EOG pair
+// straddles the eye and sees the blink larger than Fp1 does; a horizontal
+// pair at the outer canthi sees little of it).
+var eogBlinkWeight = map[string]float64{"VEOG": 1.6, "HEOG": 0.15}
+
+const (
+	eogSharedGain  = 0.2
+	eogPrivateGain = 0.5
 )
 
 type weightTable struct {
@@ -230,7 +252,7 @@ func newModel(s Spec) (*model, error) {
 	}
 	m.alpha = newRhythm(s.Seed, streamAlpha, s.AlphaHz, s.AlphaPower)
 	m.theta = newRhythm(s.Seed, streamTheta, s.ThetaHz, s.ThetaPower)
-	for _, c := range s.Channels {
+	for _, c := range append(slices.Clip(s.Channels), s.EOG...) {
 		r := newRand(s.Seed, labelStream(c, streamLine))
 		m.lineAmp[c] = s.LineAmplitude * (0.5 + r.Float64())
 		m.linePhi[c] = 2 * math.Pi * r.Float64()

@@ -93,12 +93,38 @@ type Spec struct {
 	// median impedance; each channel draws a factor in [0.5, 1.5) and a
 	// phase).
 	LineHz, LineAmplitude float64
-	// BlinksPerMinute: frontal blinks (Fp1/Fp2 strongest), a Poisson process
-	// over the whole recording.
+	// BlinksPerMinute: frontal blinks, a Poisson process over the whole
+	// recording. Each blink is a positive raised-cosine bump of 0.2–0.4 s
+	// (uniform) whose peak at Fp1/Fp2 is drawn uniformly from
+	// [BlinkMinUV, BlinkMaxUV] µV; it spreads to the other sites with
+	// falling weights (F7/F8 0.5, F3/Fz/F4 0.45, central and mid-temporal
+	// 0.12, parietal 0.05, occipital 0.03; model.go). Blinks come from their
+	// own random stream: the same Spec with BlinksPerMinute 0 gives the same
+	// file without the blinks, sample for sample.
 	BlinksPerMinute float64
-	// MuscleBurstsPerMinute: broadband 20–80 Hz bursts of 0.5–1.5 s on the
-	// temporal channels, a Poisson process over the whole recording.
+	// BlinkMinUV and BlinkMaxUV bound the blink peak at Fp1/Fp2 (µV). Both 0
+	// means the default 80–200 µV.
+	BlinkMinUV, BlinkMaxUV float64
+	// MuscleBurstsPerMinute: broadband 20–80 Hz bursts (capped at 0.45·fs)
+	// under a Hann envelope, a Poisson process over the whole recording,
+	// strongest at T7/T8 (weight 1), then F7/F8 0.7, P7/P8 0.6, Fp1/Fp2 0.3,
+	// O1/O2 0.2, elsewhere 0.1. Own random stream, like the blinks.
 	MuscleBurstsPerMinute float64
+	// MuscleMinUV and MuscleMaxUV bound a burst's RMS at the envelope peak at
+	// weight 1 (µV); both 0 means the default 10–30 µV.
+	MuscleMinUV, MuscleMaxUV float64
+	// MuscleMinSeconds and MuscleMaxSeconds bound a burst's length (s);
+	// both 0 means the default 0.5–1.5 s.
+	MuscleMinSeconds, MuscleMaxSeconds float64
+	// EOG lists electro-oculogram channels written after the EEG channels,
+	// under labels the ingest label normaliser reads as EOG: "VEOG"
+	// (vertical, above and below one eye) carries the blinks at 1.6 times
+	// their Fp1/Fp2 size, "HEOG" (outer canthi) at 0.15; both carry their
+	// own aperiodic background at a quarter of the EEG density and a fifth of
+	// the shared (volume-conducted) background, no rhythms, and line noise.
+	// Any other label is refused. Adding or removing EOG channels leaves the
+	// EEG channels' samples unchanged.
+	EOG []string
 	// Flat lists channels written as a constant 0 µV (a disconnected
 	// electrode).
 	Flat []string
@@ -264,6 +290,27 @@ func (s Spec) check() (records, perRecord int, err error) {
 			return 0, 0, specError("channel %q: label %q does not fit the 16-character ASCII field", c, l)
 		}
 	}
+	for _, c := range s.EOG {
+		if _, known := eogBlinkWeight[c]; !known || seen[c] {
+			return 0, 0, specError("EOG channel %q: want VEOG or HEOG, each once, not an EEG name", c)
+		}
+		seen[c] = true
+	}
+	if len(s.Channels)+len(s.EOG) > maxChannels {
+		return 0, 0, specError("%d channels: at most %d", len(s.Channels)+len(s.EOG), maxChannels)
+	}
+	for _, r := range []struct {
+		name   string
+		lo, hi float64
+	}{
+		{"blink amplitude (µV)", s.BlinkMinUV, s.BlinkMaxUV},
+		{"muscle amplitude (µV)", s.MuscleMinUV, s.MuscleMaxUV},
+		{"muscle burst length (s)", s.MuscleMinSeconds, s.MuscleMaxSeconds},
+	} {
+		if !(r.lo >= 0 && r.hi >= r.lo) || math.IsInf(r.hi, 0) {
+			return 0, 0, specError("%s range [%v, %v]: want 0 ≤ min ≤ max, finite", r.name, r.lo, r.hi)
+		}
+	}
 	switch s.Spelling {
 	case "", SpellPlain, SpellTypedRef, SpellDotted, SpellOldNames, SpellEarRef:
 	default:
@@ -340,6 +387,30 @@ func (s Spec) check() (records, perRecord int, err error) {
 		}
 	}
 	return records, perRecord, nil
+}
+
+// orDefault returns [lo, hi], or [dlo, dhi] when both are 0 (the field
+// left at its zero value).
+func orDefault(lo, hi, dlo, dhi float64) (float64, float64) {
+	if lo == 0 && hi == 0 {
+		return dlo, dhi
+	}
+	return lo, hi
+}
+
+// blinkRange is the blink peak range at Fp1/Fp2 in µV.
+func (s Spec) blinkRange() (float64, float64) {
+	return orDefault(s.BlinkMinUV, s.BlinkMaxUV, blinkMinUV, blinkMaxUV)
+}
+
+// muscleRange is the burst RMS range at weight 1 in µV.
+func (s Spec) muscleRange() (float64, float64) {
+	return orDefault(s.MuscleMinUV, s.MuscleMaxUV, muscleMinUV, muscleMaxUV)
+}
+
+// muscleLength is the burst length range in seconds.
+func (s Spec) muscleLength() (float64, float64) {
+	return orDefault(s.MuscleMinSeconds, s.MuscleMaxSeconds, muscleMinSeconds, muscleMaxSeconds)
 }
 
 func (s Spec) startTime() time.Time {

@@ -1,20 +1,38 @@
 // Package testenv finds what longwave's tests read from outside the
 // project: the module root (for testdata/) and the real public recordings of
-// ../shared/data beside the checkout. Tests that need the recordings skip
-// with a message saying what they need when the folder is absent, and fail
-// instead when LONGWAVE_REQUIRE_DATA=1 (as .ci/run sets it), so a CI run can
-// never pass by skipping.
+// ../shared/data beside the checkout. Tests that need the recordings, or a
+// tool such as Chromium, skip with a message saying what they need when it
+// is absent, and fail instead when the matching LONGWAVE_REQUIRE_… variable
+// is 1 (as .ci/run sets them), so a CI run can never pass by skipping. Every
+// such skip goes through Missing (SharedData calls it).
 package testenv
 
 import (
+	"fmt"
 	"os"
 	"path/filepath"
 	"testing"
 )
 
-// RequireDataVar names the environment variable that turns a missing
-// ../shared/data into a failure.
-const RequireDataVar = "LONGWAVE_REQUIRE_DATA"
+// The environment variables that turn a missing input into a failure.
+const (
+	// RequireDataVar: the shared real recordings of ../shared/data.
+	RequireDataVar = "LONGWAVE_REQUIRE_DATA"
+	// RequireBrowserVar: Debian's chromium for the browser tests.
+	RequireBrowserVar = "LONGWAVE_REQUIRE_BROWSER"
+)
+
+// Missing says that something the test needs is absent: the test fails
+// with the message when the environment variable requireVar is "1", and is
+// skipped with it otherwise.
+func Missing(tb testing.TB, requireVar, format string, args ...any) {
+	tb.Helper()
+	msg := fmt.Sprintf(format, args...)
+	if os.Getenv(requireVar) == "1" {
+		tb.Fatalf("%s, and %s=1: it is required here", msg, requireVar)
+	}
+	tb.Skip(msg)
+}
 
 // ModuleRoot walks up from the test's working directory (its package folder)
 // to the folder holding go.mod.
@@ -43,10 +61,7 @@ func SharedData(tb testing.TB, parts ...string) string {
 	tb.Helper()
 	p := filepath.Join(append([]string{ModuleRoot(tb), "..", "shared", "data"}, parts...)...)
 	if _, err := os.Stat(p); err != nil {
-		if os.Getenv(RequireDataVar) == "1" {
-			tb.Fatalf("%s is absent and %s=1: the shared real recordings are required here", p, RequireDataVar)
-		}
-		tb.Skipf("%s is absent: this test needs the shared real recordings (../shared/data, see each PROVENANCE.md)", p)
+		Missing(tb, RequireDataVar, "%s is absent: this test needs the shared real recordings (../shared/data, see each PROVENANCE.md)", p)
 	}
 	return p
 }

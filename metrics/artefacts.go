@@ -26,8 +26,9 @@ const madToSD = 1.4826
 type epochStat struct {
 	PeakToPeak float64
 	Variance   float64
-	// Band powers of the epoch's periodogram, µV².
-	Muscle, MuscleTotal, Alpha float64
+	// Band powers of the epoch's periodogram, µV² (Slow: the delta band,
+	// used by settings v2's slow-wave rule only).
+	Muscle, MuscleTotal, Alpha, Slow float64
 }
 
 // periodogram computes band powers of one epoch (at the analysis rate):
@@ -59,7 +60,7 @@ func newPeriodogram(n int, fs float64) *periodogram {
 
 // stat fills the epoch statistics of x (one epoch, len(x) = the
 // periodogram's length).
-func (p *periodogram) stat(x []float32, r ArtefactRules, alpha Band) epochStat {
+func (p *periodogram) stat(x []float32, r ArtefactRules, alpha, slow Band) epochStat {
 	var sum float64
 	lo, hi := float64(x[0]), float64(x[0])
 	for _, v := range x {
@@ -100,6 +101,9 @@ func (p *periodogram) stat(x []float32, r ArtefactRules, alpha Band) epochStat {
 		}
 		if alpha.Contains(f) {
 			st.Alpha += pw
+		}
+		if slow.Contains(f) {
+			st.Slow += pw
 		}
 	}
 	return st

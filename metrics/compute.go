@@ -412,7 +412,7 @@ func (a *analysis) measureEpochs() {
 		c := used[i]
 		st := make([]epochStat, len(a.eps))
 		for e, ep := range a.eps {
-			st[e] = pgs[w].stat(a.data[c][ep.First:ep.First+a.length], a.s.Artefacts, a.s.Bands.Alpha)
+			st[e] = pgs[w].stat(a.data[c][ep.First:ep.First+a.length], a.s.Artefacts, a.s.Bands.Alpha, a.s.Bands.Delta)
 		}
 		a.stats[c] = st
 	})

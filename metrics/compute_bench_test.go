@@ -45,7 +45,9 @@ func benchFile(tb testing.TB, minutes float64) []byte {
 	return b
 }
 
-func benchCompute(b *testing.B, minutes float64) {
+func benchCompute(b *testing.B, minutes float64) { benchComputeWith(b, minutes, V1()) }
+
+func benchComputeWith(b *testing.B, minutes float64, set Settings) {
 	file := benchFile(b, minutes)
 	b.ReportAllocs()
 	b.ResetTimer()
@@ -56,7 +58,7 @@ func benchCompute(b *testing.B, minutes float64) {
 			b.Fatal(err)
 		}
 		b.StartTimer()
-		if _, err := Compute(rec, V1()); err != nil {
+		if _, err := Compute(rec, set); err != nil {
 			b.Fatal(err)
 		}
 	}
@@ -69,6 +71,28 @@ func BenchmarkCompute30Min(b *testing.B) { benchCompute(b, 30) }
 
 // BenchmarkCompute5Min is the same on 5 minutes.
 func BenchmarkCompute5Min(b *testing.B) { benchCompute(b, 5) }
+
+// BenchmarkComputeV2Parts times Compute under V2 on the 30-minute yardstick
+// with the ocular correction and the interval bootstrap each switched off
+// (issue 9 point 8: the two together should cost at most a fifth of the
+// run): the difference between "full" and "neither" is their cost.
+func BenchmarkComputeV2Parts(b *testing.B) {
+	for _, c := range []struct {
+		name           string
+		ocular, bounds bool
+	}{{"full", true, true}, {"no-ocular", false, true}, {"no-bootstrap", true, false}, {"neither", false, false}} {
+		b.Run(c.name, func(b *testing.B) {
+			s := V2()
+			if !c.ocular {
+				s.Ocular = nil
+			}
+			if !c.bounds {
+				s.Uncertainty = nil
+			}
+			benchComputeWith(b, 30, s)
+		})
+	}
+}
 
 // maxPerMinuteGrowth bounds how much Compute's time per recording minute may
 // grow from 5 to 30 and 60 minutes (issue 3: "cost grows linearly"). Every

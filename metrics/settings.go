@@ -374,8 +374,8 @@ func V2() Settings {
 	return s
 }
 
-// Current returns the settings new visits are processed with.
-func Current() Settings { return V1() }
+// Current returns the settings new visits are processed with: V2.
+func Current() Settings { return V2() }
 
 // ByVersion returns the settings of a known version, and whether it is known.
 func ByVersion(version string) (Settings, bool) {

@@ -230,9 +230,10 @@ func (a *analysis) intervals(list []Marker) {
 			method += fmt.Sprintf("; %d of %d resamples gave a value", len(vals), u.Resamples)
 		}
 		c := inflation[m.State]
+		least, most := markerRange(m.Name)
 		m.Uncertainty = &Uncertainty{SE: c * sampleSD(vals),
-			Low:   m.Value - c*(m.Value-quantile(vals, lo)),
-			High:  m.Value + c*(quantile(vals, hi)-m.Value),
+			Low:   max(least, m.Value-c*(m.Value-quantile(vals, lo))),
+			High:  min(most, m.Value+c*(quantile(vals, hi)-m.Value)),
 			Level: u.Level, Method: method, Resamples: len(vals)}
 	}
 }
@@ -268,4 +269,19 @@ func sampleSD(v []float64) float64 {
 		ss += d * d
 	}
 	return math.Sqrt(ss / float64(len(v)-1))
+}
+
+// markerRange is the range a marker's value can take by its definition; the
+// widened interval is clipped to it (a share stays in [0, 1], an
+// attenuation 1 − EO/EC at most 1, a power ratio or a frequency at least 0).
+func markerRange(name string) (float64, float64) {
+	switch name {
+	case RelDelta, RelTheta, RelAlpha, RelBeta, DrowsinessIndex, AperiodicR2:
+		return 0, 1
+	case AlphaReactivity:
+		return math.Inf(-1), 1
+	case PDRAsymmetry, AperiodicExponent, AperiodicOffset:
+		return math.Inf(-1), math.Inf(1)
+	}
+	return 0, math.Inf(1) // frequencies and power ratios
 }

@@ -17,6 +17,11 @@ const (
 	// RuleShort: the window is clean but lies in a clean stretch shorter
 	// than one Welch segment, so no spectrum could use it.
 	RuleShort = "short"
+	// RuleSlow: the channel's delta-band power in the window is above
+	// WindowSettings.SlowRelativeMax times its median over the state's
+	// windows (what an eye movement or the rest of a corrected blink
+	// leaves).
+	RuleSlow = "slow"
 )
 
 // WindowSettings are the artefact decisions of settings v2 (DESIGN.md,
@@ -34,6 +39,19 @@ const (
 //     MAD over that channel's windows of the same state that passed rules
 //     1–3. A channel that fails is left out of that window: out of the
 //     common average of the window and out of the spectra.
+//   - Besides them, a slow-wave rule per channel: the window's delta-band
+//     (Bands.Delta) power above SlowRelativeMax times the channel's median
+//     over the windows of the state, the counterpart at the low end of the
+//     muscle-burst rule. Eye movements and what the ocular correction
+//     leaves of a blink (its part the frontal-pole proxy does not explain,
+//     and the high-pass filter's undershoot after it) sit in 1–4 Hz, well
+//     under the amplitude limit, and the common average would spread them
+//     to every channel, steepening the aperiodic fit. A 1-s periodogram's
+//     delta power (bins 1, 2, 3 Hz) of a steady background scatters as χ²
+//     with 3 to 6 degrees of freedom (fewer when the 1-Hz bin dominates),
+//     so 4 times its median is passed by chance in 0.2–2.4 % of windows
+//     (scipy.stats.chi2.sf(4·median, k) for k = 6 and 3); a channel so
+//     left out costs its own window only.
 //   - A window in which more than MostChannelsShare of the good channels
 //     fail is rejected for every channel and region (the recording, not a
 //     channel, is at fault), under the rule most of them failed.
@@ -62,10 +80,11 @@ type WindowSettings struct {
 	Seconds           float64 `json:"seconds"`
 	MostChannelsShare float64 `json:"most_channels_share"`
 	MinRegionShare    float64 `json:"min_region_share"`
+	SlowRelativeMax   float64 `json:"slow_relative_max"`
 }
 
 func defaultWindows() *WindowSettings {
-	return &WindowSettings{Seconds: 1, MostChannelsShare: 0.5, MinRegionShare: 0.5}
+	return &WindowSettings{Seconds: 1, MostChannelsShare: 0.5, MinRegionShare: 0.5, SlowRelativeMax: 4}
 }
 
 // RegionTime is the analysed time of one region in one eye state under
@@ -145,7 +164,7 @@ func (a *analysis) decideWindows() {
 	for _, c := range used {
 		v.fail[c] = make([]string, len(a.eps))
 	}
-	counts := map[string]int{RuleAmplitude: 0, RuleFlat: 0, RuleMuscle: 0, RuleVariance: 0}
+	counts := map[string]int{RuleAmplitude: 0, RuleFlat: 0, RuleMuscle: 0, RuleSlow: 0, RuleVariance: 0}
 	a.rules = counts
 	if len(used) == 0 {
 		return
@@ -161,7 +180,6 @@ func (a *analysis) decideWindows() {
 			}
 		}
 	}
-	// Rule 4 per channel and state over the windows that passed 1–3.
 	byState := map[ingest.EyeState][]int{}
 	for e, ep := range a.eps {
 		byState[ep.State] = append(byState[ep.State], e)
@@ -171,6 +189,23 @@ func (a *analysis) decideWindows() {
 		states = append(states, st)
 	}
 	sort.Slice(states, func(i, j int) bool { return states[i] < states[j] })
+	// The slow-wave rule per channel and state.
+	var slow []float64
+	for _, c := range used {
+		for _, st := range states {
+			slow = slow[:0]
+			for _, e := range byState[st] {
+				slow = append(slow, a.stats[c][e].Slow)
+			}
+			limit := v.set.SlowRelativeMax * median(slow)
+			for _, e := range byState[st] {
+				if v.fail[c][e] == "" && limit > 0 && a.stats[c][e].Slow > limit {
+					v.fail[c][e] = RuleSlow
+				}
+			}
+		}
+	}
+	// Rule 4 per channel and state over the windows that passed the others.
 	var vals, dev []float64
 	var idx []int
 	for _, c := range used {
@@ -199,7 +234,7 @@ func (a *analysis) decideWindows() {
 			}
 		}
 	}
-	order := []string{RuleAmplitude, RuleFlat, RuleMuscle, RuleVariance}
+	order := []string{RuleAmplitude, RuleFlat, RuleMuscle, RuleSlow, RuleVariance}
 	for e := range a.eps {
 		n := 0
 		by := map[string]int{}
@@ -474,7 +509,7 @@ func (a *analysis) windowLoss(e int, mem []int) string {
 	}
 	if n < need {
 		best := RuleChannels
-		for _, rule := range []string{RuleAmplitude, RuleFlat, RuleMuscle, RuleVariance} {
+		for _, rule := range []string{RuleAmplitude, RuleFlat, RuleMuscle, RuleSlow, RuleVariance} {
 			if by[rule] > 0 && (best == RuleChannels || by[rule] > by[best]) {
 				best = rule
 			}

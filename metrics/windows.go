@@ -2,6 +2,7 @@ package metrics
 
 import (
 	"math"
+	"slices"
 	"sort"
 	"strings"
 
@@ -39,10 +40,13 @@ const (
 //     MAD over that channel's windows of the same state that passed rules
 //     1–3. A channel that fails is left out of that window: out of the
 //     common average of the window and out of the spectra.
-//   - Besides them, a slow-wave rule per channel: the window's delta-band
-//     (Bands.Delta) power above SlowRelativeMax times the channel's median
-//     over the windows of the state, the counterpart at the low end of the
-//     muscle-burst rule. Eye movements and what the ocular correction
+//   - Besides them, a slow-wave rule on the frontal channels
+//     (SlowChannels): the window's delta-band (Bands.Delta) power above
+//     SlowRelativeMax times the channel's median over the windows of the
+//     state, the counterpart at the low end of the muscle-burst rule. It
+//     judges only the sites where eye artefacts dominate, so that posterior
+//     or diffuse slow activity — the slowing the markers are there to
+//     measure — is never taken for an artefact. Eye movements and what the ocular correction
 //     leaves of a blink (its part the frontal-pole proxy does not explain,
 //     and the high-pass filter's undershoot after it) sit in 1–4 Hz, well
 //     under the amplitude limit, and the common average would spread them
@@ -77,14 +81,16 @@ const (
 // recording, not a channel, is at fault when half the channels fail
 // (ChannelRules.MaxFailShare's companion).
 type WindowSettings struct {
-	Seconds           float64 `json:"seconds"`
-	MostChannelsShare float64 `json:"most_channels_share"`
-	MinRegionShare    float64 `json:"min_region_share"`
-	SlowRelativeMax   float64 `json:"slow_relative_max"`
+	Seconds           float64  `json:"seconds"`
+	MostChannelsShare float64  `json:"most_channels_share"`
+	MinRegionShare    float64  `json:"min_region_share"`
+	SlowRelativeMax   float64  `json:"slow_relative_max"`
+	SlowChannels      []string `json:"slow_channels"`
 }
 
 func defaultWindows() *WindowSettings {
-	return &WindowSettings{Seconds: 1, MostChannelsShare: 0.5, MinRegionShare: 0.5, SlowRelativeMax: 4}
+	return &WindowSettings{Seconds: 1, MostChannelsShare: 0.5, MinRegionShare: 0.5, SlowRelativeMax: 4,
+		SlowChannels: []string{"Fp1", "Fp2", "F7", "F3", "Fz", "F4", "F8"}}
 }
 
 // RegionTime is the analysed time of one region in one eye state under
@@ -192,6 +198,9 @@ func (a *analysis) decideWindows() {
 	// The slow-wave rule per channel and state.
 	var slow []float64
 	for _, c := range used {
+		if !slices.Contains(v.set.SlowChannels, a.names[c]) {
+			continue
+		}
 		for _, st := range states {
 			slow = slow[:0]
 			for _, e := range byState[st] {

@@ -389,15 +389,21 @@ func (a *analysis) epochs(rec *ingest.Recording) {
 	used := a.usedChannels()
 	a.rules = applyRules(a.eps, a.stats, used, a.s.Artefacts)
 	a.runs = cleanRuns(a.eps, a.length)
-	a.primary = ingest.EyesClosed
+	a.primary = a.primaryState()
+}
+
+// primaryState is the state the "closed" markers use: eyes closed, or
+// unknown when the recording has no eyes-closed period but an unknown one.
+func (a *analysis) primaryState() ingest.EyeState {
 	hasClosed, hasUnknown := false, false
 	for _, p := range a.periods {
 		hasClosed = hasClosed || p.State == ingest.EyesClosed
 		hasUnknown = hasUnknown || p.State == ingest.EyesUnknown
 	}
 	if !hasClosed && hasUnknown {
-		a.primary = ingest.EyesUnknown
+		return ingest.EyesUnknown
 	}
+	return ingest.EyesClosed
 }
 
 // measureEpochs fills a.stats for the good channels.

@@ -368,9 +368,6 @@ func V2() Settings {
 	s.Ocular = defaultOcular()
 	s.Uncertainty = defaultUncertainty()
 	s.Windows = defaultWindows()
-	// Welch segments start at every 1-s window (WindowSettings), so a
-	// blink costs its window, not a whole segment step of 2 s.
-	s.Welch.Overlap = 0.75
 	return s
 }
 

@@ -34,9 +34,11 @@ import (
 // the standard deviation of its resampled values, its interval the
 // (1 − Level)/2 and (1 + Level)/2 quantiles of them (the percentile
 // interval, Efron & Tibshirani ch. 13). Blocks, not single segments, are
-// drawn because neighbouring 4-s segments that start 1 s apart share 3 s
+// drawn because neighbouring 4-s segments that start 2 s apart share 2 s
 // of signal (their periodograms are correlated), and because the rhythms
-// wax and wane over seconds: BlockSeconds = 8 spans two whole segments.
+// wax and wane over seconds: BlockSeconds = 8 spans four segments. 100
+// resamples keep the cost at about one aperiodic fit per resample; the
+// coverage test checks the intervals they give.
 //
 // Resampling the stored periodograms, not the samples, makes a resample
 // cost one weighted mean of spectra and one aperiodic fit.
@@ -58,7 +60,7 @@ type UncertaintySettings struct {
 }
 
 func defaultUncertainty() *UncertaintySettings {
-	return &UncertaintySettings{Level: 0.95, Resamples: 200, BlockSeconds: 8}
+	return &UncertaintySettings{Level: 0.95, Resamples: 100, BlockSeconds: 8}
 }
 
 // Method texts of Uncertainty.Method.
@@ -103,7 +105,7 @@ func (a *analysis) intervals(list []Marker) {
 		return
 	}
 	v := a.v2
-	perBlock := max(1, int(math.Round(u.BlockSeconds/(float64(v.wlen)/a.fs))))
+	perBlock := max(1, int(math.Round(u.BlockSeconds/(float64(v.step*v.wlen)/a.fs))))
 	var blocks []blockSums
 	keys := make([]fitKey, 0, len(v.regions))
 	for k := range v.regions {

@@ -62,16 +62,16 @@ const (
 //   - The common average of each window is the mean of the channels kept
 //     in it (re-referencing a signal already referenced to any average is
 //     exact: y − mean_G(y) = x − mean_G(x)).
-//   - Spectra: Welch segments of WelchSettings.SegmentSeconds (4 s) start
-//     at every window (a step of one window: overlap 1 − Seconds/4) inside
-//     runs of consecutive windows not rejected for all. A channel takes
+//   - Spectra: Welch segments of WelchSettings.SegmentSeconds (4 s) with
+//     WelchSettings.Overlap (50 %: one every 2 windows) inside each stretch
+//     of consecutive windows not rejected for all, from its start. A channel takes
 //     part in a segment when it is kept in all of the segment's windows; a
 //     region keeps the segment when at least MinRegionShare of its good
 //     channels (at least one) take part, and the segment's regional
 //     periodogram is the mean over them. The region's spectrum is the mean
 //     of its kept segments' periodograms (each segment weighs the same).
-//     So a blink on Fp1 costs the frontal channels about a second, and the
-//     posterior region nothing; a temporal muscle burst costs T7 its
+//     So a blink on Fp1 costs the frontal channels the two segments over
+//     its window (1–2 s of their data), and the posterior region nothing; a temporal muscle burst costs T7 its
 //     window and no region a segment.
 //
 // Sources: the window length and the rules' layout are this design's
@@ -110,6 +110,7 @@ type windowAnalysis struct {
 	set  WindowSettings
 	wlen int // samples per window at the analysis rate
 	k    int // windows per Welch segment
+	step int // windows from one segment start to the next
 	// fail[c][w]: the rule channel c failed in window w ("" kept); nil for
 	// channels that are not good.
 	fail [][]string
@@ -142,6 +143,7 @@ func (a *analysis) windowsV2() {
 	v.wlen = max(2, int(math.Round(v.set.Seconds*a.fs)))
 	seg := int(math.Round(a.s.Welch.SegmentSeconds * a.fs))
 	v.k = max(1, int(math.Round(float64(seg)/float64(v.wlen))))
+	v.step = max(1, int(math.Round((1-a.s.Welch.Overlap)*float64(v.k))))
 	a.length = v.wlen
 	a.eps = epochGrid(a.periods, a.segs, a.fs, v.wlen, a.s.PeriodSkipSeconds)
 	a.measureEpochs()
@@ -151,15 +153,7 @@ func (a *analysis) windowsV2() {
 	a.decideWindows()
 	a.referenceWindows()
 	a.regionSpectra()
-	a.primary = ingest.EyesClosed
-	hasClosed, hasUnknown := false, false
-	for _, p := range a.periods {
-		hasClosed = hasClosed || p.State == ingest.EyesClosed
-		hasUnknown = hasUnknown || p.State == ingest.EyesUnknown
-	}
-	if !hasClosed && hasUnknown {
-		a.primary = ingest.EyesUnknown
-	}
+	a.primary = a.primaryState()
 }
 
 // decideWindows fills v.fail and each window's Reject (for all channels).
@@ -375,12 +369,26 @@ func (a *analysis) regionSpectra() {
 	}
 	// Candidate segments: k consecutive windows, same state, contiguous
 	// samples, none rejected for all.
+	// They start every v.step windows from the start of each stretch of
+	// consecutive windows not rejected for all.
 	var cands []int
-	for e := 0; e+v.k <= len(a.eps); e++ {
+	stretch := -1 // first window of the current stretch
+	for e := range a.eps {
+		w := a.eps[e]
+		switch {
+		case w.Reject != "":
+			stretch = -1
+			continue
+		case stretch < 0 || w.State != a.eps[e-1].State || w.First != a.eps[e-1].First+v.wlen:
+			stretch = e
+		}
+		if (e-stretch)%v.step != 0 || e+v.k > len(a.eps) {
+			continue
+		}
 		ok := true
-		for j := 0; j < v.k && ok; j++ {
-			w := a.eps[e+j]
-			ok = w.Reject == "" && w.State == a.eps[e].State && w.First == a.eps[e].First+j*v.wlen
+		for j := 1; j < v.k && ok; j++ {
+			x := a.eps[e+j]
+			ok = x.Reject == "" && x.State == w.State && x.First == w.First+j*v.wlen
 		}
 		if ok {
 			cands = append(cands, e)

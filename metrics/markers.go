@@ -283,12 +283,18 @@ func (a *analysis) drowsinessIndex() (float64, bool, string) {
 	if len(alpha) == 0 {
 		return 0, false, "no clean " + stateWords(st) + " epoch"
 	}
-	limit := a.s.Drowsiness.DropoutFraction * quantile(alpha, a.s.Drowsiness.ReferenceQuantile)
+	return dropoutShare(alpha, a.s.Drowsiness), true, ""
+}
+
+// dropoutShare is the share of alpha powers below DropoutFraction × their
+// ReferenceQuantile (DrowsinessSettings).
+func dropoutShare(alpha []float64, d DrowsinessSettings) float64 {
+	limit := d.DropoutFraction * quantile(alpha, d.ReferenceQuantile)
 	n := 0
 	for _, v := range alpha {
 		if v < limit {
 			n++
 		}
 	}
-	return float64(n) / float64(len(alpha)), true, ""
+	return float64(n) / float64(len(alpha))
 }

@@ -209,7 +209,7 @@ func (a *analysis) decideWindows() {
 		}
 	}
 	// Rule 4 per channel and state over the windows that passed the others.
-	var vals, dev []float64
+	var vals []float64
 	var idx []int
 	for _, c := range used {
 		for _, st := range states {
@@ -220,16 +220,10 @@ func (a *analysis) decideWindows() {
 					idx = append(idx, e)
 				}
 			}
-			med := median(vals)
-			dev = dev[:0]
-			for _, x := range vals {
-				dev = append(dev, math.Abs(x-med))
-			}
-			mad := median(dev)
-			if mad == 0 {
+			limit, ok := robustUpperLimit(vals, r.VarianceK)
+			if !ok {
 				continue
 			}
-			limit := med + r.VarianceK*madToSD*mad
 			for i, e := range idx {
 				if vals[i] > limit {
 					v.fail[c][e] = RuleVariance
@@ -721,14 +715,7 @@ func (a *analysis) drowsinessV2() (float64, bool, string) {
 			}
 		}
 	}
-	limit := a.s.Drowsiness.DropoutFraction * quantile(alpha, a.s.Drowsiness.ReferenceQuantile)
-	n := 0
-	for _, x := range alpha {
-		if x < limit {
-			n++
-		}
-	}
-	return float64(n) / float64(len(alpha)), true, ""
+	return dropoutShare(alpha, a.s.Drowsiness), true, ""
 }
 
 // runsV2 are the stretches covered by the posterior region's kept segments,

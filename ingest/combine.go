@@ -1,6 +1,8 @@
 package ingest
 
 import (
+	"crypto/sha256"
+	"encoding/hex"
 	"errors"
 	"fmt"
 	"math"
@@ -53,7 +55,7 @@ func Combine(closed, open *Recording) (*Recording, error) {
 	n1, d1 := runExtent(closed, fs)
 	_, d2 := runExtent(open, fs)
 
-	rec := &Recording{Name: names}
+	rec := &Recording{Name: names, SHA256: joinedDigest(closed.SHA256, open.SHA256)}
 	var dropped []string
 	for i := range closed.Channels {
 		a := &closed.Channels[i]
@@ -201,4 +203,14 @@ func agreeText(what, a, b string) (string, string) {
 		return b, ""
 	}
 	return a, fmt.Sprintf("%s differs between the runs (closed %q, open %q); the closed run's is kept", what, a, b)
+}
+
+// joinedDigest is the SHA-256 of the two runs' digest texts in order
+// (closed, open), "" when either is unknown.
+func joinedDigest(closed, open string) string {
+	if closed == "" || open == "" {
+		return ""
+	}
+	sum := sha256.Sum256([]byte(closed + open))
+	return hex.EncodeToString(sum[:])
 }

@@ -1,7 +1,10 @@
 package ingest
 
 import (
+	"crypto/sha256"
+	"encoding/hex"
 	"fmt"
+	"io"
 	"os"
 	"path/filepath"
 )
@@ -22,7 +25,16 @@ func ReadFile(path string, opt Options) (*Recording, error) {
 	if !st.Mode().IsRegular() {
 		return nil, fmt.Errorf("ingest: %s: not a regular file", name)
 	}
-	return Decode(f, st.Size(), name, opt)
+	rec, err := Decode(f, st.Size(), name, opt)
+	if err != nil {
+		return nil, err
+	}
+	h := sha256.New()
+	if _, err := io.Copy(h, io.NewSectionReader(f, 0, st.Size())); err != nil {
+		return nil, fmt.Errorf("ingest: read %s for its SHA-256: %w", name, unwrapPath(err))
+	}
+	rec.SHA256 = hex.EncodeToString(h.Sum(nil))
+	return rec, nil
 }
 
 // unwrapPath drops the full path from an *os.PathError (directory names

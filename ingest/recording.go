@@ -223,6 +223,12 @@ type Recording struct {
 	Periods     []Period
 	Annotations []Annotation
 	Conditions  Conditions
+	// SHA256 is the lowercase hex SHA-256 of the file's bytes, set by
+	// ReadFile (and by callers of Decode that know it); for two runs joined
+	// by Combine, the SHA-256 of the two digests' texts in order. It seeds
+	// the marker intervals' resampling, so the same file always gives the
+	// same interval; "" when unknown.
+	SHA256 string
 }
 
 // Channel returns the channel with the given 10-10 label, or nil.

@@ -26,8 +26,9 @@ const madToSD = 1.4826
 type epochStat struct {
 	PeakToPeak float64
 	Variance   float64
-	// Band powers of the epoch's periodogram, µV².
-	Muscle, MuscleTotal, Alpha float64
+	// Band powers of the epoch's periodogram, µV² (Slow: the delta band,
+	// used by settings v2's slow-wave rule only).
+	Muscle, MuscleTotal, Alpha, Slow float64
 }
 
 // periodogram computes band powers of one epoch (at the analysis rate):
@@ -59,7 +60,7 @@ func newPeriodogram(n int, fs float64) *periodogram {
 
 // stat fills the epoch statistics of x (one epoch, len(x) = the
 // periodogram's length).
-func (p *periodogram) stat(x []float32, r ArtefactRules, alpha Band) epochStat {
+func (p *periodogram) stat(x []float32, r ArtefactRules, alpha, slow Band) epochStat {
 	var sum float64
 	lo, hi := float64(x[0]), float64(x[0])
 	for _, v := range x {
@@ -101,6 +102,9 @@ func (p *periodogram) stat(x []float32, r ArtefactRules, alpha Band) epochStat {
 		if alpha.Contains(f) {
 			st.Alpha += pw
 		}
+		if slow.Contains(f) {
+			st.Slow += pw
+		}
 	}
 	return st
 }
@@ -136,23 +140,16 @@ func applyRules(eps []epoch, stats [][]epochStat, used []int, r ArtefactRules) m
 		}
 	}
 	vals := make([]float64, 0, len(eps))
-	dev := make([]float64, 0, len(eps))
 	for _, idx := range byState {
 		for _, c := range used {
 			vals = vals[:0]
 			for _, e := range idx {
 				vals = append(vals, logVariance(stats[c][e].Variance))
 			}
-			med := median(vals)
-			dev = dev[:0]
-			for _, v := range vals {
-				dev = append(dev, math.Abs(v-med))
-			}
-			mad := median(dev)
-			if mad == 0 {
+			limit, ok := robustUpperLimit(vals, r.VarianceK)
+			if !ok {
 				continue // fewer than three distinct values: no spread to judge by
 			}
-			limit := med + r.VarianceK*madToSD*mad
 			for i, e := range idx {
 				if vals[i] > limit {
 					eps[e].Reject = RuleVariance
@@ -244,4 +241,19 @@ func quantile(v []float64, q float64) float64 {
 	}
 	frac := pos - float64(i)
 	return s[i] + frac*(s[i+1]-s[i])
+}
+
+// robustUpperLimit is median + k · 1.4826 · MAD of v (the robust z-score
+// limit of rule 4); false when the MAD is 0 (no spread to judge by).
+func robustUpperLimit(v []float64, k float64) (float64, bool) {
+	med := median(v)
+	dev := make([]float64, len(v))
+	for i, x := range v {
+		dev[i] = math.Abs(x - med)
+	}
+	mad := median(dev)
+	if mad == 0 {
+		return 0, false
+	}
+	return med + k*madToSD*mad, true
 }

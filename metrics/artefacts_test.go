@@ -77,7 +77,7 @@ func TestPeriodogramPower(t *testing.T) {
 	for i := range x {
 		x[i] = float32(amp * math.Sin(2*math.Pi*10*float64(i)/fs))
 	}
-	st := newPeriodogram(n, fs).stat(x, V1().Artefacts, V1().Bands.Alpha)
+	st := newPeriodogram(n, fs).stat(x, V1().Artefacts, V1().Bands.Alpha, V1().Bands.Delta)
 	want := amp * amp / 2
 	if math.Abs(st.Alpha/want-1) > 1e-6 {
 		t.Errorf("alpha power %g, want %g", st.Alpha, want)

@@ -55,6 +55,7 @@ func Compute(rec *ingest.Recording, s Settings) (*Result, error) {
 	}
 	res.Quality = a.quality()
 	res.Markers = a.markers()
+	a.intervals(res.Markers)
 	if dk, known := a.drowsiness(); known {
 		res.Quality.Drowsiness, res.Quality.DrowsinessKnown = dk, true
 	}
@@ -78,6 +79,11 @@ func analyse(rec *ingest.Recording, s Settings) (*analysis, error) {
 	a.markBadChannels()
 	if err := a.correctOcular(rec); err != nil {
 		return nil, err
+	}
+	if s.Windows != nil {
+		a.windowsV2()
+		a.runs = a.runsV2()
+		return a, nil
 	}
 	commonAverage(a.data, a.good, a.n, a.workers)
 	a.epochs(rec)
@@ -124,7 +130,17 @@ type analysis struct {
 	psd     map[ingest.EyeState][][]float64
 	primary ingest.EyeState // the state the "closed" markers use
 	fits    map[fitKey]fitResult
-	ocular  *OcularReport // what correctOcular did (nil: not asked for)
+
+	// v2 holds the per-channel, per-window decisions and the regional
+	// segment spectra of settings v2 (nil under v1).
+	v2 *windowAnalysis
+	// override, when set, replaces region (the bootstrap's resampled
+	// spectra); lean skips what a resample does not need (the
+	// distinctness fits of the peak searches and the drowsiness index).
+	override func(st ingest.EyeState, region string) ([]float64, string)
+	lean     bool
+	seed     [2]uint64     // the bootstrap's PCG seed (seedOf)
+	ocular   *OcularReport // what correctOcular did (nil: not asked for)
 }
 
 func prepare(rec *ingest.Recording, s Settings) (*analysis, error) {
@@ -178,6 +194,9 @@ func prepare(rec *ingest.Recording, s Settings) (*analysis, error) {
 		a.data = append(a.data, ch.Samples[:a.nIn])
 	}
 	a.workers = max(1, min(runtime.GOMAXPROCS(0), maxWorkers, len(chans)))
+	if s.Uncertainty != nil {
+		a.seed[0], a.seed[1] = seedOf(rec, a.data)
+	}
 	a.segsIn = segmentsOf(rec, a.nIn)
 	// The segments after decimation: segment g keeps its samples
 	// First + k·q, k < ceil(Count/q), packed one after the other.
@@ -383,15 +402,21 @@ func (a *analysis) epochs(rec *ingest.Recording) {
 	used := a.usedChannels()
 	a.rules = applyRules(a.eps, a.stats, used, a.s.Artefacts)
 	a.runs = cleanRuns(a.eps, a.length)
-	a.primary = ingest.EyesClosed
+	a.primary = a.primaryState()
+}
+
+// primaryState is the state the "closed" markers use: eyes closed, or
+// unknown when the recording has no eyes-closed period but an unknown one.
+func (a *analysis) primaryState() ingest.EyeState {
 	hasClosed, hasUnknown := false, false
 	for _, p := range a.periods {
 		hasClosed = hasClosed || p.State == ingest.EyesClosed
 		hasUnknown = hasUnknown || p.State == ingest.EyesUnknown
 	}
 	if !hasClosed && hasUnknown {
-		a.primary = ingest.EyesUnknown
+		return ingest.EyesUnknown
 	}
+	return ingest.EyesClosed
 }
 
 // measureEpochs fills a.stats for the good channels.
@@ -406,7 +431,7 @@ func (a *analysis) measureEpochs() {
 		c := used[i]
 		st := make([]epochStat, len(a.eps))
 		for e, ep := range a.eps {
-			st[e] = pgs[w].stat(a.data[c][ep.First:ep.First+a.length], a.s.Artefacts, a.s.Bands.Alpha)
+			st[e] = pgs[w].stat(a.data[c][ep.First:ep.First+a.length], a.s.Artefacts, a.s.Bands.Alpha, a.s.Bands.Delta)
 		}
 		a.stats[c] = st
 	})
@@ -468,6 +493,10 @@ func (a *analysis) quality() Quality {
 	}
 	for _, c := range a.usedChannels() {
 		q.UsedChannels = append(q.UsedChannels, a.names[c])
+	}
+	if a.v2 != nil {
+		a.qualityV2(&q)
+		return q
 	}
 	rejected := 0
 	for _, p := range a.periods {

@@ -55,6 +55,12 @@ func decodeBench(tb testing.TB, file []byte) *ingest.Recording {
 	return rec
 }
 
+// benchComputeWith times Compute with set on a synthetic recording of the
+// given length.
+func benchComputeWith(b *testing.B, minutes float64, set Settings) {
+	benchComputeFile(b, benchFile(b, minutes), set)
+}
+
 func benchCompute(b *testing.B, minutes float64) {
 	benchComputeFile(b, benchFile(b, minutes), V1())
 	b.ReportMetric(float64(b.Elapsed().Seconds())/float64(b.N)/minutes, "s/recording-minute")
@@ -81,6 +87,28 @@ func BenchmarkCompute30Min(b *testing.B) { benchCompute(b, 30) }
 
 // BenchmarkCompute5Min is the same on 5 minutes.
 func BenchmarkCompute5Min(b *testing.B) { benchCompute(b, 5) }
+
+// BenchmarkComputeV2Parts times Compute under V2 on the 30-minute yardstick
+// with the ocular correction and the interval bootstrap each switched off
+// (issue 9 point 8: the two together should cost at most a fifth of the
+// run): the difference between "full" and "neither" is their cost.
+func BenchmarkComputeV2Parts(b *testing.B) {
+	for _, c := range []struct {
+		name           string
+		ocular, bounds bool
+	}{{"full", true, true}, {"no-ocular", false, true}, {"no-bootstrap", true, false}, {"neither", false, false}} {
+		b.Run(c.name, func(b *testing.B) {
+			s := V2()
+			if !c.ocular {
+				s.Ocular = nil
+			}
+			if !c.bounds {
+				s.Uncertainty = nil
+			}
+			benchComputeWith(b, 30, s)
+		})
+	}
+}
 
 // maxPerMinuteGrowth bounds how much Compute's time per recording minute may
 // grow from 5 to 30 and 60 minutes (issue 3: "cost grows linearly"). Every

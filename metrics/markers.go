@@ -56,6 +56,13 @@ func (a *analysis) pdrOf(st ingest.EyeState, region string, cache map[fitKey]fit
 	if why != "" {
 		return peak{}, why
 	}
+	if a.lean {
+		hz, ok := peakFrequency(a.freqs, spec, a.s.Peak)
+		if !ok {
+			return peak{}, "no peak in the resample"
+		}
+		return peak{Found: true, Distinct: true, Hz: hz}, ""
+	}
 	fit, err := a.fitOf(st, region, spec, cache)
 	if err != nil {
 		return peak{}, fmt.Sprintf("aperiodic fit failed: %v", err)
@@ -220,7 +227,11 @@ func (a *analysis) markers() []Marker {
 		}
 	}
 
-	// Drowsiness index.
+	// Drowsiness index (its interval is analytic: not resampled).
+	if a.lean {
+		a.fits = cache
+		return m.list
+	}
 	if d, known, why := a.drowsinessIndex(); known {
 		m.ok(DrowsinessIndex, RegionPosterior, st, d, UnitShare)
 	} else {
@@ -240,6 +251,9 @@ func (a *analysis) drowsiness() (float64, bool) {
 // alpha power drops below DropoutFraction × the ReferenceQuantile of that
 // power over the same epochs (DrowsinessSettings).
 func (a *analysis) drowsinessIndex() (float64, bool, string) {
+	if a.v2 != nil {
+		return a.drowsinessV2()
+	}
 	st := a.primary
 	if why := a.stateUsable(st); why != "" {
 		return 0, false, why
@@ -269,12 +283,18 @@ func (a *analysis) drowsinessIndex() (float64, bool, string) {
 	if len(alpha) == 0 {
 		return 0, false, "no clean " + stateWords(st) + " epoch"
 	}
-	limit := a.s.Drowsiness.DropoutFraction * quantile(alpha, a.s.Drowsiness.ReferenceQuantile)
+	return dropoutShare(alpha, a.s.Drowsiness), true, ""
+}
+
+// dropoutShare is the share of alpha powers below DropoutFraction × their
+// ReferenceQuantile (DrowsinessSettings).
+func dropoutShare(alpha []float64, d DrowsinessSettings) float64 {
+	limit := d.DropoutFraction * quantile(alpha, d.ReferenceQuantile)
 	n := 0
 	for _, v := range alpha {
 		if v < limit {
 			n++
 		}
 	}
-	return float64(n) / float64(len(alpha)), true, ""
+	return float64(n) / float64(len(alpha))
 }

@@ -112,6 +112,9 @@ type Quality struct {
 	UsedChannels []string `json:"used_channels"`
 	// Clean seconds per state after artefact rejection (keys "closed",
 	// "open", "unknown"), epochs per state, rejected epochs per rule.
+	// Under settings v2 the epochs are the 1-s analysis windows, the
+	// rejected ones those rejected for every channel, and the clean
+	// seconds the posterior region's (Regions has every region's).
 	CleanSeconds   map[ingest.EyeState]float64 `json:"clean_seconds"`
 	EpochsTotal    map[ingest.EyeState]int     `json:"epochs_total"`
 	RejectedByRule map[string]int              `json:"rejected_by_rule"`
@@ -124,6 +127,12 @@ type Quality struct {
 	// Windows are the analysis windows in time order with the decision on
 	// each (kept, or the rule that rejected it).
 	Windows []Window `json:"windows,omitempty"`
+	// Regions (settings v2 onward) are, per region and state, the seconds
+	// analysed, the seconds the region's spectrum used and why the rest
+	// went. ChannelWindowsLeftOut is, per channel, the share of windows it
+	// was left out of while the window was kept for the others.
+	Regions               []RegionTime       `json:"regions,omitempty"`
+	ChannelWindowsLeftOut map[string]float64 `json:"channel_windows_left_out,omitempty"`
 	// Ocular is what the ocular correction did (settings v2 onward; nil
 	// when the settings have none).
 	Ocular *OcularReport `json:"ocular,omitempty"`

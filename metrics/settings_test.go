@@ -176,3 +176,25 @@ func TestV1HashPinned(t *testing.T) {
 		t.Errorf("V1().Hash() = %s, want the pinned %s (a changed setting needs a new version)", got, v1Hash)
 	}
 }
+
+// v2Hash pins version 2 in the same way. V2 is what Current returns, so a
+// changed number here is a new version too.
+const v2Hash = "617aabdb3fc8ad2afbb1e50effe9e43b40ac8dd79e510aa5c3b91057152b2a79"
+
+func TestV2HashPinned(t *testing.T) {
+	if got := V2().Hash(); got != v2Hash {
+		t.Errorf("V2().Hash() = %s, want the pinned %s (a changed setting needs a new version)", got, v2Hash)
+	}
+	if v1, v2 := V1(), V2(); v1.Hash() == v2.Hash() || v2.Version == v1.Version {
+		t.Error("V2 must differ from V1 in version and hash")
+	}
+	if c := Current(); c.Version != "2" || c.Hash() != v2Hash {
+		t.Errorf("Current() is version %q (%s), want V2", c.Version, c.Hash())
+	}
+	for _, v := range []string{"1", "2"} {
+		s, ok := ByVersion(v)
+		if !ok || s.Version != v {
+			t.Errorf("ByVersion(%q) = %q, %v", v, s.Version, ok)
+		}
+	}
+}

@@ -117,16 +117,7 @@ func (a *analysis) spectra() {
 	}
 	proto := NewWelch(a.fs, seg, overlap)
 	a.freqs = proto.Freqs()
-	corr := make([]float64, len(a.freqs))
-	for k, f := range a.freqs {
-		corr[k] = 1
-		if a.s.Filters.CorrectResponse {
-			h := powerResponse(a.hp, f, a.fs) * powerResponse(a.lp, f, a.fsIn)
-			if r := h * h; r >= a.s.Filters.CorrectFloor {
-				corr[k] = 1 / r
-			}
-		}
-	}
+	corr := a.responseCorrection()
 	used := a.usedChannels()
 	parallel(len(used), a.workers, func(_, i int) {
 		c := used[i]
@@ -205,6 +196,12 @@ func stateWords(st ingest.EyeState) string {
 // region returns the mean spectrum of the good channels of a region in a
 // state, or a reason why there is none.
 func (a *analysis) region(st ingest.EyeState, name string) ([]float64, string) {
+	if a.override != nil {
+		return a.override(st, name)
+	}
+	if a.v2 != nil {
+		return a.regionV2(st, name)
+	}
 	if why := a.stateUsable(st); why != "" {
 		return nil, why
 	}

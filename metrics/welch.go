@@ -43,6 +43,7 @@ type Welch struct {
 	buf      []float64
 	coef     []complex128
 	sum      []float64 // Σ over segments of the one-sided periodogram
+	one      []float64 // one segment's periodogram
 	segments int
 }
 
@@ -102,6 +103,19 @@ func (w *Welch) AddFloat32(x []float32) int {
 // addBuf detrends, windows and transforms w.buf and adds its one-sided
 // periodogram to the sums.
 func (w *Welch) addBuf() {
+	if w.one == nil {
+		w.one = make([]float64, len(w.sum))
+	}
+	w.transform(w.one)
+	for k, p := range w.one {
+		w.sum[k] += p
+	}
+	w.segments++
+}
+
+// transform detrends, windows and transforms w.buf and writes its one-sided
+// periodogram to dst (len(dst) = len(w.sum)).
+func (w *Welch) transform(dst []float64) {
 	var mean float64
 	for _, v := range w.buf {
 		mean += v
@@ -117,9 +131,8 @@ func (w *Welch) addBuf() {
 		if k > 0 && (k < last || w.segment%2 == 1) {
 			p *= 2
 		}
-		w.sum[k] += p
+		dst[k] = p
 	}
-	w.segments++
 }
 
 // Merge adds the segments of o to w. It panics if the two differ in
@@ -162,5 +175,24 @@ func (w *Welch) PSD(dst []float64) []float64 {
 	for k, v := range w.sum {
 		dst[k] = v / inv
 	}
+	return dst
+}
+
+// Periodogram writes the one-sided density of the single segment x
+// (len(x) = the segment length; detrended and windowed as in Add) to dst,
+// allocating when dst is too short, and returns it. The accumulated sums
+// are not touched.
+func (w *Welch) Periodogram(dst []float64, x []float32) []float64 {
+	if len(x) != w.segment {
+		panic(fmt.Sprintf("metrics: Welch.Periodogram: %d samples, segment is %d", len(x), w.segment))
+	}
+	for i, v := range x {
+		w.buf[i] = float64(v)
+	}
+	if cap(dst) < len(w.sum) {
+		dst = make([]float64, len(w.sum))
+	}
+	dst = dst[:len(w.sum)]
+	w.transform(dst)
 	return dst
 }

@@ -116,6 +116,7 @@ func init() {
 			closed := fs.String("closed", "", "eyes-closed run `FILE` of the visit")
 			open := fs.String("open", "", "eyes-open run `FILE` of the visit")
 			state := fs.String("state", "", "eye `STATE` of the whole FILE when it has no annotations: closed or open")
+			version := fs.String("settings", "", "processing settings `VERSION` (1 or 2; default: the current one), to compare versions")
 			return func(args []string) error {
 				single := ""
 				switch len(args) {
@@ -135,7 +136,13 @@ func init() {
 				if err != nil {
 					return err
 				}
-				settings := metrics.V1()
+				settings := metrics.Current()
+				if *version != "" {
+					var ok bool
+					if settings, ok = metrics.ByVersion(*version); !ok {
+						return usagef("--settings %q: no such settings version (1 or 2)", *version)
+					}
+				}
 				rec, err := decodeForMarkers(single, *closed, *open, declared)
 				if err != nil {
 					return err

@@ -335,15 +335,10 @@ type Summary struct {
 	Elapsed          time.Duration
 }
 
-// olderSettings is the processing of OldSettings visits: version 1 with a
-// longer epoch, labelled as an earlier version, so the course shows a visit
-// whose numbers were made by other settings (until `longwave reprocess`).
-func olderSettings() metrics.Settings {
-	s := metrics.V1()
-	s.Version = "0.9-demo"
-	s.EpochSeconds = 2
-	return s
-}
+// olderSettings is the processing of OldSettings visits: version 1, the
+// settings before metrics.Current, so the course shows a visit whose
+// numbers were made by an older version (until `longwave reprocess`).
+func olderSettings() metrics.Settings { return metrics.V1() }
 
 // Build writes every planned visit through the pipeline. progress, when not
 // nil, is called after each visit with the count done and the total.

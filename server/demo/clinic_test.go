@@ -117,12 +117,12 @@ func TestBuildShowsEveryRule(t *testing.T) {
 	if len(pats) != patientCount+ControlCount {
 		t.Fatalf("patients stored: %d, want %d", len(pats), patientCount+ControlCount)
 	}
-	v1 := metrics.V1()
+	cur := metrics.Current()
 	controls, err := st.GroupVisitRecords(ctx, clinic.ControlGroup)
 	if err != nil {
 		t.Fatal(err)
 	}
-	norms := trends.BuildControlNorms(controls, trends.ControlNormOptions{SettingsVersion: v1.Version, SettingsHash: v1.Hash(), Today: planDay})
+	norms := trends.BuildControlNorms(controls, trends.ControlNormOptions{SettingsVersion: cur.Version, SettingsHash: cur.Hash(), Today: planDay})
 	course := map[string]Course{}
 	for _, p := range Plan(planDay) {
 		course[p.Code] = p.Course
@@ -135,7 +135,7 @@ func TestBuildShowsEveryRule(t *testing.T) {
 		if err != nil {
 			t.Fatal(err)
 		}
-		c := trends.BuildCourse(ps.Patient, visits, trends.CourseOptions{SettingsVersion: v1.Version, SettingsHash: v1.Hash(), Today: planDay, Norms: norms})
+		c := trends.BuildCourse(ps.Patient, visits, trends.CourseOptions{SettingsVersion: cur.Version, SettingsHash: cur.Hash(), Today: planDay, Norms: norms})
 		for _, v := range c.Visits {
 			for _, f := range v.Flags {
 				fired[f.Rule]++

@@ -143,8 +143,8 @@ func TestReprocessKeepsBIDSEvents(t *testing.T) {
 		t.Fatalf("visit period source %v, want events", vs[0].Conditions.PeriodSource)
 	}
 	before := vs[0]
-	next := metrics.V1()
-	next.Version = "v1-events-test"
+	next := metrics.Current()
+	next.Version = "v2-events-test"
 	next.Peak.SmoothBins += 2
 	rep, err := (&intake.Pipeline{Store: p.Store, Settings: next}).Reprocess(bg, nil)
 	if err != nil || len(rep.Visits) != 1 || len(rep.Failed) != 0 {

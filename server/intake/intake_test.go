@@ -198,8 +198,8 @@ func TestReprocessUnderNewSettings(t *testing.T) {
 		t.Fatalf("reprocess under the same settings: %d visits, %v", len(rep.Visits), err)
 	}
 	// New settings: a wider smoothing window moves the peak estimates.
-	next := metrics.V1()
-	next.Version = "v1-test"
+	next := metrics.Current()
+	next.Version = "v2-test"
 	next.Peak.SmoothBins += 4
 	p2 := &intake.Pipeline{Store: p.Store, Settings: next}
 	rep, err = p2.Reprocess(bg, nil)
@@ -212,11 +212,11 @@ func TestReprocessUnderNewSettings(t *testing.T) {
 	moved := 0
 	for _, vc := range rep.Visits {
 		moved += len(vc.Changes)
-		if vc.OldVersion != metrics.V1().Version {
+		if vc.OldVersion != metrics.Current().Version {
 			t.Errorf("visit %d: old version %s", vc.VisitID, vc.OldVersion)
 		}
 		v, _ := p.Store.Visit(bg, vc.VisitID)
-		if v.SettingsVersion != "v1-test" || v.SettingsHash != next.Hash() {
+		if v.SettingsVersion != "v2-test" || v.SettingsHash != next.Hash() {
 			t.Errorf("visit %d now %s %s", vc.VisitID, v.SettingsVersion, v.SettingsHash)
 		}
 		for _, m := range v.Markers {
@@ -230,7 +230,7 @@ func TestReprocessUnderNewSettings(t *testing.T) {
 	if moved == 0 {
 		t.Error("a wider smoothing window moved no marker: the report or the rerun is not real")
 	}
-	if ids, _ := p.Store.VisitsWithOtherSettings(bg, "v1-test", next.Hash()); len(ids) != 0 {
+	if ids, _ := p.Store.VisitsWithOtherSettings(bg, "v2-test", next.Hash()); len(ids) != 0 {
 		t.Errorf("still on other settings: %v", ids)
 	}
 	// Back to v1: the markers come back to what ingest made, bit for bit.

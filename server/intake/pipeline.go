@@ -32,7 +32,7 @@ import (
 var ErrRequest = errors.New("intake: bad request")
 
 // Pipeline ingests visits into one store. Its zero Settings are not valid:
-// build it with New, or set Settings (metrics.V1()) yourself. It is safe for
+// build it with New, or set Settings (metrics.Current()) yourself. It is safe for
 // concurrent use.
 type Pipeline struct {
 	Store    *store.Store
@@ -44,10 +44,10 @@ type Pipeline struct {
 	inFlight map[string]bool // SHA-256 of files being ingested now
 }
 
-// New returns a pipeline with the current settings (metrics.V1) and the
+// New returns a pipeline with the current settings (metrics.Current) and the
 // default eye-state phrases.
 func New(st *store.Store) *Pipeline {
-	return &Pipeline{Store: st, Settings: metrics.V1()}
+	return &Pipeline{Store: st, Settings: metrics.Current()}
 }
 
 // File is one recording file: a path on disk, or content already in memory
@@ -303,6 +303,9 @@ func (p *Pipeline) decodeParts(parts []part, declared ingest.EyeState) (*ingest.
 			return nil, err
 		}
 		parts[i].format = string(rec.Conditions.Format)
+		if parts[i].sha != "" {
+			rec.SHA256 = parts[i].sha // seeds the marker intervals
+		}
 		recs[i] = rec
 	}
 	if len(recs) == 1 {

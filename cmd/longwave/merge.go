@@ -67,7 +67,7 @@ not merged.
 					}
 					parts = append(parts, st)
 				}
-				settings := metrics.V1()
+				settings := metrics.Current()
 				rep, err := into.Merge(e.ctx, parts, store.MergeOptions{SettingsVersion: settings.Version, SettingsHash: settings.Hash()})
 				var mc *store.MergeConflictError
 				if errors.As(err, &mc) {

@@ -282,6 +282,7 @@ func changeFigures(c trends.Change, unit string) []web.Pair {
 		}
 		out = append(out, web.Pair{Label: "Reliable change", Value: "RCI " + decimals(c.Reliable.RC, 2) + ", " + verdict})
 		out = append(out, web.Pair{Label: "Smallest reliable", Value: withUnit(sig(c.Reliable.Threshold), unit)})
+		out = append(out, web.Pair{Label: "Noise from", Value: noiseWords(c.Reliable)})
 	case c.Reliable.Reason != "":
 		out = append(out, web.Pair{Label: "Reliable change", Value: peopleText(c.Reliable.Reason)})
 	}
@@ -290,6 +291,19 @@ func changeFigures(c trends.Change, unit string) []web.Pair {
 	}
 	out = append(out, web.Pair{Label: "Direction", Value: directionWords(c.Direction)})
 	return out
+}
+
+// noiseWords names where a reliable change index took its measurement
+// noise: the clinic's controls, or the borrowed literature r.
+func noiseWords(r trends.ReliableChange) string {
+	switch {
+	case r.SEBasis == trends.BasisClinic:
+		return "the clinic's controls (residual SD)"
+	case r.Provisional:
+		return "literature r (provisional)"
+	default:
+		return "literature r"
+	}
 }
 
 func directionWords(d trends.Direction) string {

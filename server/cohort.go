@@ -55,11 +55,12 @@ func (s *Server) buildCohort(r *http.Request) (*trends.Cohort, error) {
 	if err != nil {
 		return nil, err
 	}
-	ps := make([]trends.CohortPatient, len(all))
-	for i, pc := range all {
-		ps[i] = trends.CohortPatient{Patient: pc.Patient, Visits: pc.Visits}
+	norms, err := s.controlNorms(r)
+	if err != nil {
+		return nil, err
 	}
-	c := trends.BuildCohort(ps, trends.CohortOptions{Today: now, SettingsVersion: s.settingsVersion, SettingsHash: s.settingsHash, Markers: refs})
+	c := trends.BuildCohort(all, trends.CohortOptions{Today: now, SettingsVersion: s.settingsVersion, SettingsHash: s.settingsHash,
+		Markers: refs, Norms: norms})
 	cc.c, cc.built = &c, now
 	return cc.c, nil
 }

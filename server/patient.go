@@ -89,8 +89,13 @@ func (s *Server) course(r *http.Request, code string) (trends.Course, error) {
 	if err != nil {
 		return trends.Course{}, err
 	}
+	norms, err := s.controlNorms(r)
+	if err != nil {
+		return trends.Course{}, err
+	}
 	return trends.BuildCourse(p, visits, trends.CourseOptions{
 		Ranges:          rg,
+		Norms:           norms,
 		SettingsVersion: s.settingsVersion,
 		SettingsHash:    s.settingsHash,
 		Today:           s.now(),
@@ -157,6 +162,7 @@ func courseBody(c trends.Course, canAdd bool) *web.CourseBody {
 		key := "m" + strconv.Itoa(i)
 		opt, chart := courseChart(sr)
 		chart.Key = key
+		chart.Norm = normView(sr)
 		page.ChartData[key] = opt
 		page.Charts = append(page.Charts, chart)
 	}

@@ -118,6 +118,7 @@ type Server struct {
 	cohort   cohortCache
 	bodies   bodyCache
 	traces   traceCache
+	norms    normsCache
 	sessions sessionCache
 	auditor  auditor
 	// building serialises the build of cached bodies, so that 50 requests

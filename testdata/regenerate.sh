@@ -17,5 +17,8 @@ echo "-- epoch masks from the Go pipeline, then the MNE + scipy reference marker
 go test ./metrics/ -count=1 -run '^TestReferenceAgreement$' -update-reference >/dev/null
 "$py" testdata/metrics/reference/reference_markers.py
 
+echo "-- the literature rows of migration 0002 as the store reads them back"
+go test ./server/store/ -count=1 -run '^TestLiteratureRowsFile$' -update-literature >/dev/null
+
 echo "-- numpy/scipy regression and t quantiles"
 "$py" testdata/trends/make_golden.py

@@ -176,9 +176,18 @@ func findReliability(table []Reliability, marker, region, state string) (Reliabi
 //
 // reliable at the 5 % level when |RC| > 1.96. Threshold = 1.96·S_diff is the
 // smallest reliable change in the marker's unit.
+//
+// The standard error of measurement SE comes from the clinic's control
+// model where one exists (SEBasis BasisClinic: SE = the model's residual
+// SD σ, the visit-to-visit noise of a control about their own line, measured
+// in this clinic; SD and r are then 0), else from the borrowed literature SD
+// and test–retest r (SEBasis BasisLiterature, marked provisional where the
+// table says so). SESource says which, in words.
 type ReliableChange struct {
 	Known       bool    `json:"known"`
 	Reason      string  `json:"reason,omitempty"`
+	SEBasis     string  `json:"se_basis,omitempty"`
+	SESource    string  `json:"se_source,omitempty"`
 	SD          float64 `json:"sd"`
 	SDSource    string  `json:"sd_source,omitempty"`
 	R           float64 `json:"r"`
@@ -206,25 +215,72 @@ func ReliableChangeIndex(x1, x2 float64, rel Reliability) ReliableChange {
 		return out
 	}
 	out.Known = true
+	out.SEBasis = BasisLiterature
+	out.SESource = "SE = SD·√(1 − r) from the literature SD and test–retest r"
 	out.SE = rel.SD * math.Sqrt(1-rel.R)
+	out.finish(x1, x2)
+	return out
+}
+
+// seFromNorm says where a clinic-based SE comes from (the model's figures
+// and basis are in Change.Expected).
+const seFromNorm = "SE = the residual SD of the clinic's control model: the visit-to-visit noise of its controls about their own lines"
+
+// reliableFromNorm is the reliable change index with the standard error of
+// measurement taken from the control model: SE = σ, its residual SD.
+func reliableFromNorm(x1, x2 float64, norm seriesNorm) ReliableChange {
+	out := ReliableChange{Known: true, SEBasis: BasisClinic, SE: norm.ResidualSD, SESource: seFromNorm}
+	out.finish(x1, x2)
+	return out
+}
+
+// finish fills S_diff, RC, the threshold and the verdict from SE.
+func (out *ReliableChange) finish(x1, x2 float64) {
 	out.SDiff = math.Sqrt2 * out.SE
 	out.RC = (x2 - x1) / out.SDiff
 	out.Threshold = ReliableZ * out.SDiff
 	out.Reliable = math.Abs(out.RC) > ReliableZ
-	return out
 }
 
-// ExpectedForAge compares the slope with the expected yearly change for age
-// of the reference data. Verdict is ExpectedFaster only when the slope's
-// confidence interval excludes the expected rate on the far side from zero
-// (for an expected rate of zero: on either side).
+// Bases of an expected change and of a reliable change index's noise.
+const (
+	BasisClinic     = "clinic controls"
+	BasisLiterature = "literature"
+)
+
+// ExpectedForAge is the expected yearly change for age of a marker. With a
+// control model (Basis BasisClinic) it is the model's fixed slope on age
+// β̂₁ with its 95 % interval, the between-person SD of slopes and the
+// residual SD, and the persons and visits fitted (BasisText names them:
+// "clinic controls: 24 persons, 96 visits, fitted 2026-12-03"); the
+// patient's slope is judged against it in Change.Verdict. Without one, a
+// reference row's expected change (Basis BasisLiterature, no interval: CILow
+// and CIHigh equal PerYear) is compared with the slope's interval: Verdict
+// is ExpectedFaster only when the slope's confidence interval excludes the
+// expected rate on the far side from zero (for an expected rate of zero: on
+// either side). Known false says why in Reason.
 type ExpectedForAge struct {
-	Known   bool    `json:"known"`
-	Reason  string  `json:"reason,omitempty"`
-	PerYear float64 `json:"per_year"`
-	Source  string  `json:"source,omitempty"`
-	Verdict string  `json:"verdict,omitempty"`
-	Faster  bool    `json:"faster"`
+	Known      bool    `json:"known"`
+	Basis      string  `json:"basis"`
+	BasisText  string  `json:"basis_text,omitempty"`
+	PerYear    float64 `json:"per_year"`
+	CILow      float64 `json:"ci_low"`
+	CIHigh     float64 `json:"ci_high"`
+	SlopeSD    float64 `json:"slope_sd"`
+	ResidualSD float64 `json:"residual_sd"`
+	Persons    int     `json:"persons"`
+	Visits     int     `json:"visits"`
+	Reason     string  `json:"reason"`
+	Source     string  `json:"source,omitempty"`
+	Verdict    string  `json:"verdict,omitempty"`
+	Faster     bool    `json:"faster"`
+}
+
+// expectedFromNorm is the expected change of a known control model.
+func expectedFromNorm(n seriesNorm) ExpectedForAge {
+	return ExpectedForAge{Known: true, Basis: BasisClinic, BasisText: n.basis,
+		PerYear: n.PerYear.Value, CILow: n.PerYear.CILow, CIHigh: n.PerYear.CIHigh,
+		SlopeSD: n.SlopeSD, ResidualSD: n.ResidualSD, Persons: n.Persons, Visits: n.Visits, Source: n.Method}
 }
 
 // ChangePoint is one comparable value of a marker series.
@@ -255,6 +311,9 @@ type Change struct {
 	Slope           Slope          `json:"slope"`
 	Reliable        ReliableChange `json:"reliable"`
 	Expected        ExpectedForAge `json:"expected"`
+	// Verdict is the patient's own slope against the clinic's control
+	// model (CompareSlope), or why there is none.
+	Verdict SlopeVerdict `json:"verdict"`
 	// Direction: from the slope's interval with three or more points (up
 	// when it lies above 0, down below 0, steady when it holds 0); with two
 	// points from the reliable change index (up or down when reliable,
@@ -275,6 +334,12 @@ type ExpectedRate struct {
 // rel is the marker's reliability row (ok false: none); exp the expected
 // yearly change for age. A point whose date does not parse is skipped.
 func ComputeChange(points []ChangePoint, rel Reliability, relOK bool, exp ExpectedRate) Change {
+	return computeChange(points, rel, relOK, exp, seriesNorm{})
+}
+
+// computeChange is ComputeChange with the series' control model (Known
+// false: none).
+func computeChange(points []ChangePoint, rel Reliability, relOK bool, exp ExpectedRate, norm seriesNorm) Change {
 	years := make([]float64, 0, len(points))
 	values := make([]float64, 0, len(points))
 	var first civilDate
@@ -291,12 +356,14 @@ func ComputeChange(points []ChangePoint, rel Reliability, relOK bool, exp Expect
 		years = append(years, float64(d.daysSince(first))/DaysPerYear)
 		values = append(values, p.Value)
 	}
-	return changeFrom(kept, years, values, rel, relOK, exp)
+	return changeFrom(kept, years, values, rel, relOK, exp, norm)
 }
 
 // changeFrom is ComputeChange on points whose dates are already turned into
-// years since the first.
-func changeFrom(kept []ChangePoint, years, values []float64, rel Reliability, relOK bool, exp ExpectedRate) Change {
+// years since the first, with the control model norm of the series (Known
+// false: none), which then gives the reliable change index its noise and the
+// expected change for age.
+func changeFrom(kept []ChangePoint, years, values []float64, rel Reliability, relOK bool, exp ExpectedRate, norm seriesNorm) Change {
 	var c Change
 	c.Points = len(kept)
 	c.Direction, c.DirectionBasis = DirectionUnknown, "fewer than 2 comparable points"
@@ -305,6 +372,9 @@ func changeFrom(kept []ChangePoint, years, values []float64, rel Reliability, re
 		c.Slope = FitSlope(nil, nil)
 		c.Reliable.Reason = "no comparable points"
 		c.Expected.Reason = "no comparable points"
+		if norm.Known {
+			c.Expected = expectedFromNorm(norm)
+		}
 		return c
 	}
 	b, l := kept[0], kept[len(kept)-1]
@@ -319,20 +389,29 @@ func changeFrom(kept []ChangePoint, years, values []float64, rel Reliability, re
 	}
 	c.Slope = FitSlope(years, values)
 
+	withNorm := norm.Known && norm.ResidualSD > 0
 	switch {
 	case len(kept) < 2:
 		c.Reliable.Reason = "one comparable point: no change to test"
+	case withNorm:
+		c.Reliable = reliableFromNorm(b.Value, l.Value, norm)
 	case !relOK:
-		c.Reliable.Reason = "no test–retest reliability and SD for this marker in longwave's sources: reliable change not computed"
+		c.Reliable.Reason = "no control model and no test–retest reliability and SD for this marker in longwave's sources: reliable change not computed"
 	default:
 		c.Reliable = ReliableChangeIndex(b.Value, l.Value, rel)
 	}
 
 	switch {
+	case norm.Known:
+		c.Expected = expectedFromNorm(norm)
 	case !exp.Known:
 		c.Expected.Reason = "no expected yearly change for age in the reference data"
+		if norm.Reason != "" {
+			c.Expected.Reason = "no control model: " + norm.Reason + "; " + c.Expected.Reason
+		}
 	case !c.Slope.Known:
-		c.Expected = ExpectedForAge{PerYear: exp.PerYear, Source: exp.Source, Reason: "no slope to compare: " + c.Slope.Reason}
+		c.Expected = ExpectedForAge{Basis: BasisLiterature, PerYear: exp.PerYear, CILow: exp.PerYear, CIHigh: exp.PerYear,
+			Source: exp.Source, Reason: "no slope to compare: " + c.Slope.Reason}
 	default:
 		c.Expected = compareExpected(c.Slope, exp)
 	}
@@ -365,7 +444,8 @@ func changeFrom(kept []ChangePoint, years, values []float64, rel Reliability, re
 }
 
 func compareExpected(s Slope, exp ExpectedRate) ExpectedForAge {
-	out := ExpectedForAge{Known: true, PerYear: exp.PerYear, Source: exp.Source}
+	out := ExpectedForAge{Known: true, Basis: BasisLiterature, BasisText: BasisLiterature + ": " + exp.Source,
+		PerYear: exp.PerYear, CILow: exp.PerYear, CIHigh: exp.PerYear, Source: exp.Source}
 	e := exp.PerYear
 	switch {
 	case s.CILow <= e && e <= s.CIHigh:

@@ -12,7 +12,7 @@ import (
 	"time"
 
 	"longwave/metrics"
-	"longwave/server/store"
+	"longwave/metrics/clinic"
 )
 
 // DefaultFollowUpMonths is the follow-up interval when neither the patient
@@ -43,12 +43,6 @@ func DefaultMainMarkers() []SeriesRef {
 	}
 }
 
-// CohortPatient is a patient with all their visit records.
-type CohortPatient struct {
-	Patient store.Patient
-	Visits  []store.VisitRecord
-}
-
 // CohortOptions are what BuildCohort needs beside the patients.
 type CohortOptions struct {
 	Today time.Time
@@ -60,6 +54,9 @@ type CohortOptions struct {
 	Reliability []Reliability
 	// Markers whose direction each row shows (nil: DefaultMainMarkers()).
 	Markers []SeriesRef
+	// Norms are the clinic's control models (nil: none); where a main
+	// marker has one, its reliable change index takes the noise from it.
+	Norms *ControlNorms
 }
 
 // MarkerDirection is a row's summary of one main marker.
@@ -128,7 +125,7 @@ type Cohort struct {
 // BuildCohort makes one row per patient (in the given order) and the
 // cohort's retention and share of non-comparable visits. Retention counts
 // every visit, comparable or not.
-func BuildCohort(patients []CohortPatient, opt CohortOptions) Cohort {
+func BuildCohort(patients []clinic.PatientCourse, opt CohortOptions) Cohort {
 	table := opt.Reliability
 	if table == nil {
 		table = DefaultReliability()
@@ -184,7 +181,7 @@ func BuildCohort(patients []CohortPatient, opt CohortOptions) Cohort {
 		}
 		row.Flagged = len(row.LatestFlags) > 0
 		for _, ref := range refs {
-			row.Markers = append(row.Markers, directionOf(as, ref, table))
+			row.Markers = append(row.Markers, directionOf(as, ref, table, opt.Norms))
 			if row.Markers[len(row.Markers)-1].ReliableChange {
 				row.ReliableChange = true
 			}
@@ -220,7 +217,7 @@ func BuildCohort(patients []CohortPatient, opt CohortOptions) Cohort {
 }
 
 // directionOf summarises one main marker of a patient.
-func directionOf(as []assessed, ref SeriesRef, table []Reliability) MarkerDirection {
+func directionOf(as []assessed, ref SeriesRef, table []Reliability, norms *ControlNorms) MarkerDirection {
 	id, ok := findSeries(as, ref)
 	md := MarkerDirection{Marker: ref.Marker, Region: ref.Region, State: ref.State,
 		Direction: DirectionUnknown, DirectionBasis: "marker not found in any visit"}
@@ -245,7 +242,7 @@ func directionOf(as []assessed, ref SeriesRef, table []Reliability) MarkerDirect
 		values = append(values, v)
 	}
 	rel, relOK := findReliability(table, id.name, id.region, id.state)
-	ch := changeFrom(cps, years, values, rel, relOK, ExpectedRate{})
+	ch := changeFrom(cps, years, values, rel, relOK, ExpectedRate{}, norms.find(id.name, id.region, id.state))
 	md.Points, md.Direction, md.DirectionBasis = ch.Points, ch.Direction, ch.DirectionBasis
 	md.HasSlope, md.SlopePerYear = ch.Slope.Known, ch.Slope.PerYear
 	md.RCIKnown, md.RC, md.ReliableChange = ch.Reliable.Known, ch.Reliable.RC, ch.Reliable.Reliable

@@ -11,21 +11,21 @@ import (
 	"testing"
 	"time"
 
-	"longwave/server/store"
+	"longwave/metrics/clinic"
 )
 
 // cohortPatients is an invented cohort seen on 2024-06-01.
-func cohortPatients() []CohortPatient {
-	a := []store.VisitRecord{visitRec(1, "2021-05-01", 70, 9.8), visitRec(2, "2022-05-10", 71, 9.3), visitRec(3, "2023-05-01", 72, 8.9)}
-	b := []store.VisitRecord{visitRec(4, "2024-01-10", 66, 9.9)}
-	d := []store.VisitRecord{visitRec(5, "2021-03-01", 75, 9.4), visitRec(6, "2023-02-15", 77, 9.3)}
+func cohortPatients() []clinic.PatientCourse {
+	a := []clinic.VisitRecord{visitRec(1, "2021-05-01", 70, 9.8), visitRec(2, "2022-05-10", 71, 9.3), visitRec(3, "2023-05-01", 72, 8.9)}
+	b := []clinic.VisitRecord{visitRec(4, "2024-01-10", 66, 9.9)}
+	d := []clinic.VisitRecord{visitRec(5, "2021-03-01", 75, 9.4), visitRec(6, "2023-02-15", 77, 9.3)}
 	d[1].Quality.Drowsiness = 0.4
 	d[1].Flags = CheckVisit(VisitQuality{Conditions: d[1].Conditions, Quality: d[1].Quality})
-	return []CohortPatient{
-		{Patient: store.Patient{ID: 1, Code: "LH-A", Group: "patient"}, Visits: a},
-		{Patient: store.Patient{ID: 2, Code: "LH-B", Group: "patient"}, Visits: b},
-		{Patient: store.Patient{ID: 3, Code: "=LH-C", Group: "patient"}},
-		{Patient: store.Patient{ID: 4, Code: "LH-D", Group: "control", FollowUpMonths: 24}, Visits: d},
+	return []clinic.PatientCourse{
+		{Patient: clinic.Patient{ID: 1, Code: "LH-A", Group: "patient"}, Visits: a},
+		{Patient: clinic.Patient{ID: 2, Code: "LH-B", Group: "patient"}, Visits: b},
+		{Patient: clinic.Patient{ID: 3, Code: "=LH-C", Group: "patient"}},
+		{Patient: clinic.Patient{ID: 4, Code: "LH-D", Group: "control", FollowUpMonths: 24}, Visits: d},
 	}
 }
 
@@ -174,13 +174,13 @@ func TestWriteCohortCSV(t *testing.T) {
 }
 
 // benchCohort is 5,000 invented patients with 2–8 yearly visits each.
-func benchCohort() []CohortPatient {
+func benchCohort() []clinic.PatientCourse {
 	rng := rand.New(rand.NewPCG(2026, 12))
-	out := make([]CohortPatient, 5000)
+	out := make([]clinic.PatientCourse, 5000)
 	id := int64(0)
 	for i := range out {
 		n := 2 + rng.IntN(7)
-		vs := make([]store.VisitRecord, n)
+		vs := make([]clinic.VisitRecord, n)
 		age := 55 + 30*rng.Float64()
 		pdr := 9 + rng.Float64()
 		for k := range vs {
@@ -192,7 +192,7 @@ func benchCohort() []CohortPatient {
 				vs[k].Flags = CheckVisit(VisitQuality{Conditions: vs[k].Conditions, Quality: vs[k].Quality})
 			}
 		}
-		out[i] = CohortPatient{Patient: store.Patient{ID: int64(i + 1), Code: fmt.Sprintf("LH-%05d", i+1)}, Visits: vs}
+		out[i] = clinic.PatientCourse{Patient: clinic.Patient{ID: int64(i + 1), Code: fmt.Sprintf("LH-%05d", i+1)}, Visits: vs}
 	}
 	return out
 }
@@ -205,6 +205,34 @@ func BenchmarkBuildCohort5000(b *testing.B) {
 		c := BuildCohort(ps, opt)
 		if len(c.Rows) != 5000 {
 			b.Fatal("rows")
+		}
+	}
+}
+
+// The same cohort with the control norms of 100 controls: the reliable
+// change of each row's main markers takes its noise from them.
+func BenchmarkBuildCohort5000Norms(b *testing.B) {
+	ps := benchCohort()
+	today := time.Date(2024, 6, 1, 0, 0, 0, 0, time.UTC)
+	norms := BuildControlNorms(ageingControls(100, -0.02), ControlNormOptions{SettingsVersion: testVersion, SettingsHash: testHash, Today: today})
+	opt := CohortOptions{Today: today, SettingsVersion: testVersion, SettingsHash: testHash, Norms: norms}
+	b.ResetTimer()
+	for b.Loop() {
+		c := BuildCohort(ps, opt)
+		if len(c.Rows) != 5000 {
+			b.Fatal("rows")
+		}
+	}
+}
+
+// Fitting the control norms of 100 controls with 4 visits (three marker
+// series), as the server does when the controls' data changed.
+func BenchmarkBuildControlNorms100(b *testing.B) {
+	ps := ageingControls(100, -0.02)
+	opt := ControlNormOptions{SettingsVersion: testVersion, SettingsHash: testHash, Today: time.Date(2024, 6, 1, 0, 0, 0, 0, time.UTC)}
+	for b.Loop() {
+		if n := BuildControlNorms(ps, opt); len(n.Norms) != 3 {
+			b.Fatal("norms")
 		}
 	}
 }

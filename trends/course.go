@@ -8,7 +8,7 @@ import (
 
 	"longwave/ingest"
 	"longwave/metrics"
-	"longwave/server/store"
+	"longwave/metrics/clinic"
 )
 
 // RuleBadDate flags a visit whose date is not a civil date: it cannot be
@@ -43,6 +43,11 @@ type CourseOptions struct {
 	Today time.Time
 	// FollowUpMonths when the patient sets none (0: 12).
 	FollowUpMonths int
+	// Norms are the clinic's control models (BuildControlNorms; nil:
+	// none). A series with a Known model takes from it the expected change
+	// for age, the reliable change index's noise and the verdict on the
+	// patient's slope.
+	Norms *ControlNorms
 }
 
 // PatientInfo is the patient as a course shows it.
@@ -134,6 +139,10 @@ type Series struct {
 	Unit   string        `json:"unit"`
 	Points []SeriesPoint `json:"points"`
 	Change Change        `json:"change"`
+	// LiteratureNotes are the published ageing figures that may be shown
+	// beside the clinic norm (LiteratureNotes), advisory, each with its
+	// source; empty for markers the literature says nothing usable of.
+	LiteratureNotes []LiteratureNote `json:"literature_notes"`
 }
 
 // Course is a patient's course: every visit with its verdict, and every
@@ -154,7 +163,7 @@ type Course struct {
 
 // assessed is a visit in date order with its parsed date and all flags.
 type assessed struct {
-	rec        *store.VisitRecord
+	rec        *clinic.VisitRecord
 	date       civilDate
 	dateOK     bool
 	flags      []metrics.Flag
@@ -164,7 +173,7 @@ type assessed struct {
 // assess sorts a patient's visits by date (then ID; unparseable dates last)
 // and gathers each visit's flags: stored, settings, and against the visit
 // before it.
-func assess(visits []store.VisitRecord, version, hash string) []assessed {
+func assess(visits []clinic.VisitRecord, version, hash string) []assessed {
 	out := make([]assessed, len(visits))
 	for i := range visits {
 		a := &out[i]
@@ -293,7 +302,7 @@ func sortSeriesIDs(ids []seriesID) {
 }
 
 // changeOf computes the change figures of one series from its points.
-func changeOf(points []SeriesPoint, id seriesID, table []Reliability, exp ExpectedRate) Change {
+func changeOf(points []SeriesPoint, id seriesID, table []Reliability, exp ExpectedRate, norm seriesNorm) Change {
 	var cps []ChangePoint
 	for _, p := range points {
 		if p.Comparable {
@@ -301,10 +310,10 @@ func changeOf(points []SeriesPoint, id seriesID, table []Reliability, exp Expect
 		}
 	}
 	rel, ok := findReliability(table, id.name, id.region, id.state)
-	return ComputeChange(cps, rel, ok, exp)
+	return computeChange(cps, rel, ok, exp, norm)
 }
 
-func followUpMonths(p store.Patient, def int) int {
+func followUpMonths(p clinic.Patient, def int) int {
 	switch {
 	case p.FollowUpMonths > 0:
 		return p.FollowUpMonths
@@ -331,7 +340,7 @@ func nextDue(visits []assessed, months int, today civilDate) (string, int) {
 // that marker (a flag concerns only its markers), the ranges at the visit's
 // age and the change figures over the comparable points. The expected
 // yearly change for age is taken from the ranges at the baseline age.
-func BuildCourse(p store.Patient, visits []store.VisitRecord, opt CourseOptions) Course {
+func BuildCourse(p clinic.Patient, visits []clinic.VisitRecord, opt CourseOptions) Course {
 	table := opt.Reliability
 	if table == nil {
 		table = DefaultReliability()
@@ -357,12 +366,19 @@ func BuildCourse(p store.Patient, visits []store.VisitRecord, opt CourseOptions)
 	}
 	c.NextDue, c.DaysOverdue = nextDue(as, months, today)
 	for _, id := range seriesIDs(as) {
-		s := Series{Key: seriesKey(id.name, id.region, id.state), Marker: id.name, Region: id.region, State: id.state}
+		s := Series{Key: seriesKey(id.name, id.region, id.state), Marker: id.name, Region: id.region, State: id.state,
+			LiteratureNotes: nonNil(LiteratureNotes(id.name))}
+		ses := make([]float64, 0, len(as)) // each point's own standard error, 0 without one
 		for i := range as {
 			pt, m := pointOf(&as[i], id.name, id.region, id.state)
 			if s.Unit == "" {
 				s.Unit = m.Unit
 			}
+			se := 0.0
+			if u := m.Uncertainty; u != nil && u.SE > 0 {
+				se = u.SE
+			}
+			ses = append(ses, se)
 			pt.Reasons, pt.Cautions = nonNil(pt.Reasons), nonNil(pt.Cautions)
 			if pt.AgeKnown {
 				pt.Literature = opt.Ranges.Lookup(id.name, id.region, id.state, pt.AgeYears)
@@ -387,7 +403,9 @@ func BuildCourse(p store.Patient, visits []store.VisitRecord, opt CourseOptions)
 				break
 			}
 		}
-		s.Change = changeOf(s.Points, id, table, exp)
+		norm := opt.Norms.find(id.name, id.region, id.state)
+		s.Change = changeOf(s.Points, id, table, exp, norm)
+		s.Change.Verdict = patientVerdict(s.Points, ses, norm.ControlNorm)
 		c.Series = append(c.Series, s)
 	}
 	return c

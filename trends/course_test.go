@@ -9,15 +9,15 @@ import (
 
 	"longwave/ingest"
 	"longwave/metrics"
-	"longwave/server/store"
+	"longwave/metrics/clinic"
 )
 
 // courseVisits is an invented patient of an invented clinic: five yearly
 // visits. Visit 2 has O1 bad (the PDR is not comparable, the global exponent
 // is); visit 3 comes from other equipment (a caution against visit 2);
 // visit 4 was processed with settings v0 (not comparable at all).
-func courseVisits() []store.VisitRecord {
-	v := []store.VisitRecord{
+func courseVisits() []clinic.VisitRecord {
+	v := []clinic.VisitRecord{
 		visitRec(11, "2019-04-02", 68.3, 9.6),
 		visitRec(12, "2020-04-14", 69.3, 9.5),
 		visitRec(13, "2021-04-06", 70.3, 9.2),
@@ -48,7 +48,7 @@ func literatureRanges(t *testing.T) *Ranges {
 }
 
 func TestBuildCourse(t *testing.T) {
-	p := store.Patient{ID: 1, Code: "LH-0417", Sex: "F", BirthYear: 1951, Group: "patient", Cohort: "Lindenhof memory clinic"}
+	p := clinic.Patient{ID: 1, Code: "LH-0417", Sex: "F", BirthYear: 1951, Group: "patient", Cohort: "Lindenhof memory clinic"}
 	c := BuildCourse(p, courseVisits(), CourseOptions{
 		Ranges: literatureRanges(t), SettingsVersion: testVersion, SettingsHash: testHash,
 		Today: time.Date(2024, 6, 1, 9, 0, 0, 0, time.UTC),
@@ -146,17 +146,17 @@ func TestBuildCourse(t *testing.T) {
 
 func TestBuildCourseEdgeCases(t *testing.T) {
 	// No visits.
-	c := BuildCourse(store.Patient{Code: "LH-0001"}, nil, CourseOptions{SettingsVersion: testVersion, Today: time.Now()})
+	c := BuildCourse(clinic.Patient{Code: "LH-0001"}, nil, CourseOptions{SettingsVersion: testVersion, Today: time.Now()})
 	if len(c.Visits) != 0 || len(c.Series) != 0 || c.NextDue != "" || c.Visits == nil || c.Series == nil {
 		t.Errorf("empty course %+v", c)
 	}
 	// A bad date, a marker that is not computable, a visit lacking a marker,
 	// an unknown age.
-	v := []store.VisitRecord{visitRec(1, "2020-02-30", 70, 9.5), visitRec(2, "2021-02-01", 71, 9.4), visitRec(3, "2022-02-01", 72, 9.3)}
+	v := []clinic.VisitRecord{visitRec(1, "2020-02-30", 70, 9.5), visitRec(2, "2021-02-01", 71, 9.4), visitRec(3, "2022-02-01", 72, 9.3)}
 	v[1].Markers[0].Computable, v[1].Markers[0].Value, v[1].Markers[0].Reason = false, 0, "no distinct rhythm: peak 1.1 × the aperiodic fit"
 	v[2].Markers = v[2].Markers[1:]
 	v[2].Visit.AgeKnown = false
-	c = BuildCourse(store.Patient{Code: "LH-0002", FollowUpMonths: 6}, v, CourseOptions{SettingsVersion: testVersion, SettingsHash: testHash, Today: time.Date(2022, 3, 1, 0, 0, 0, 0, time.UTC)})
+	c = BuildCourse(clinic.Patient{Code: "LH-0002", FollowUpMonths: 6}, v, CourseOptions{SettingsVersion: testVersion, SettingsHash: testHash, Today: time.Date(2022, 3, 1, 0, 0, 0, 0, time.UTC)})
 	if c.Visits[2].Date != "2020-02-30" || c.Visits[2].Comparable {
 		t.Errorf("bad date visit: %+v", c.Visits[2])
 	}
@@ -181,11 +181,11 @@ func TestBuildCourseEdgeCases(t *testing.T) {
 // A flag concerns only its markers: an eyes-open gap makes reactivity
 // not comparable and leaves the PDR alone.
 func TestCourseFlagScope(t *testing.T) {
-	v := []store.VisitRecord{visitRec(1, "2020-01-01", 70, 9.5)}
+	v := []clinic.VisitRecord{visitRec(1, "2020-01-01", 70, 9.5)}
 	v[0].Markers = append(v[0].Markers, metrics.Marker{Name: metrics.AlphaReactivity, Region: metrics.RegionPosterior, State: ingest.EyesOpen, Value: 0.6, Computable: true})
 	v[0].Quality.CleanSeconds[ingest.EyesOpen] = 0
 	v[0].Flags = CheckVisit(VisitQuality{Conditions: v[0].Conditions, Quality: v[0].Quality})
-	c := BuildCourse(store.Patient{Code: "LH-0003"}, v, CourseOptions{SettingsVersion: testVersion, SettingsHash: testHash, Today: time.Now()})
+	c := BuildCourse(clinic.Patient{Code: "LH-0003"}, v, CourseOptions{SettingsVersion: testVersion, SettingsHash: testHash, Today: time.Now()})
 	for _, s := range c.Series {
 		want := s.Marker != metrics.AlphaReactivity
 		if s.Points[0].Comparable != want {
@@ -206,11 +206,11 @@ func TestCourseExpectedChangeFromClinicFile(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	v := []store.VisitRecord{
+	v := []clinic.VisitRecord{
 		visitRec(1, "2020-01-10", 71, 9.6), visitRec(2, "2021-01-12", 72, 9.3),
 		visitRec(3, "2022-01-11", 73, 9.0), visitRec(4, "2023-01-10", 74, 8.75),
 	}
-	c := BuildCourse(store.Patient{Code: "LH-0420"}, v, CourseOptions{Ranges: r, SettingsVersion: testVersion, SettingsHash: testHash, Today: time.Now()})
+	c := BuildCourse(clinic.Patient{Code: "LH-0420"}, v, CourseOptions{Ranges: r, SettingsVersion: testVersion, SettingsHash: testHash, Today: time.Now()})
 	e := c.Series[0].Change.Expected
 	if !e.Known || !e.Faster || e.Verdict != ExpectedFaster || e.PerYear != -0.03 || !strings.Contains(e.Source, "Lindenhof") {
 		t.Errorf("expected for age %+v (slope %+v)", e, c.Series[0].Change.Slope)

@@ -4,13 +4,16 @@
 // marker changed over the comparable visits. It also builds the cohort
 // follow-up and local reference ranges from a clinic's control participants.
 // It knows nothing of HTTP or SQL: plain values in, plain values out, every
-// exported value a struct with JSON tags (no maps).
+// exported value a struct with JSON tags (no maps). Its inputs are the
+// vocabulary of package metrics/clinic (Patient, VisitRecord, PatientCourse,
+// ReferenceRange), which the store fills; trends imports no longwave/server
+// package (TestNoServerImports).
 //
 // # Comparability (rules.go, thresholds.go)
 //
 //	CheckVisit(VisitQuality{Conditions, Quality, Markers}) []metrics.Flag   // single-visit gates, run at intake
-//	CheckSettings(v store.VisitRecord, version, hash string) []metrics.Flag // other processing settings
-//	CompareVisits(prev, cur store.VisitRecord) []metrics.Flag              // cautions between two visits
+//	CheckSettings(v clinic.VisitRecord, version, hash string) []metrics.Flag // other processing settings
+//	CompareVisits(prev, cur clinic.VisitRecord) []metrics.Flag              // cautions between two visits
 //	Rules() []Rule                                                         // the rule catalogue for people
 //	FlagAffects(f metrics.Flag, m metrics.Marker) bool
 //
@@ -22,8 +25,8 @@
 //
 // # Reference ranges (ranges.go, rangefile.go)
 //
-//	NewRanges(rows []store.ReferenceRange) (*Ranges, error)        // validates; errors name the row
-//	ParseRangesTSV(r io.Reader, set string) ([]store.ReferenceRange, error) // a clinic's own file; errors name the line
+//	NewRanges(rows []clinic.ReferenceRange) (*Ranges, error)        // validates; errors name the row
+//	ParseRangesTSV(r io.Reader, set string) ([]clinic.ReferenceRange, error) // a clinic's own file; errors name the line
 //	(*Ranges).Lookup(marker, region, state string, age float64) RangeLookup
 //	(RangeLookup).Place(value float64) RangeLookup                  // below/within/above, z where mean and SD exist
 //	NoRangeReason(marker string) string
@@ -45,7 +48,7 @@
 //
 // # Course (course.go) — for the patient screen and the API
 //
-//	BuildCourse(p store.Patient, visits []store.VisitRecord, opt CourseOptions) Course
+//	BuildCourse(p clinic.Patient, visits []clinic.VisitRecord, opt CourseOptions) Course
 //
 //	CourseOptions{Ranges *Ranges; LocalRanges *LocalRanges; SettingsVersion, SettingsHash string;
 //	              Reliability []Reliability (nil: default); Today time.Time; FollowUpMonths int}
@@ -58,7 +61,21 @@
 //	SeriesPoint{VisitID; Date; AgeYears; AgeKnown; Value; Unit; Computable; Comparable;
 //	       Reasons, Cautions []string; Literature RangeLookup; Local LocalCheck}
 //	Change{Points; Baseline…/Latest… (VisitID, Date, Value); HasFromBaseline; FromBaseline; Years;
-//	       Slope Slope; Reliable ReliableChange; Expected ExpectedForAge; Direction; DirectionBasis}
+//	       Slope Slope; Reliable ReliableChange; Expected ExpectedForAge; Verdict SlopeVerdict;
+//	       Direction; DirectionBasis}
+//	Series.LiteratureNotes []LiteratureNote                     // published ageing notes, advisory
+//
+// # Control norms (controls.go; the model in norm.go and verdict.go)
+//
+//	BuildControlNorms(patients []clinic.PatientCourse, opt ControlNormOptions) *ControlNorms
+//	(*ControlNorms).Find(marker, region, state string) ControlNorm // not Known, with a Reason, when none
+//
+// With CourseOptions.Norms, a series whose control model is Known takes from
+// it the expected change for age (Expected.Basis "clinic controls"), the
+// standard error of measurement of the reliable change index (the model's
+// residual SD; Reliable.SEBasis says so, the literature r is the fallback)
+// and the verdict on the patient's own slope (CompareSlope). CohortOptions.Norms
+// does the same for the cohort's reliable change.
 //
 // Visits are in date order; every series has one point per visit (a visit
 // without the marker gives a point that is not computable), so charts share
@@ -66,12 +83,11 @@
 //
 // # Cohort (cohort.go) — for the cohort screen and `longwave export`
 //
-//	BuildCohort(patients []CohortPatient, opt CohortOptions) Cohort
+//	BuildCohort(patients []clinic.PatientCourse, opt CohortOptions) Cohort
 //	SortRows(rows []CohortRow, key string, descending bool) error // code, overdue, last_visit, next_due, visits, comparable_visits
 //	FilterRows(rows []CohortRow, f RowFilter) []CohortRow        // RowFilter{Overdue, Flagged, ReliableChange}
 //	WriteCohortCSV(w io.Writer, rows []CohortRow) error
 //
-//	CohortPatient{Patient store.Patient; Visits []store.VisitRecord}
 //	CohortOptions{Today time.Time; FollowUpMonths int (0: 12); SettingsVersion, SettingsHash string;
 //	              Reliability []Reliability; Markers []SeriesRef (nil: DefaultMainMarkers())}
 //	Cohort{Today; FollowUpMonths; Markers; Rows []CohortRow; Patients; Visits; NonComparable;
@@ -81,7 +97,7 @@
 //
 // # Local ranges (local.go)
 //
-//	BuildLocalRanges(patients []CohortPatient, opt LocalOptions) *LocalRanges
+//	BuildLocalRanges(patients []clinic.PatientCourse, opt LocalOptions) *LocalRanges
 //	(*LocalRanges).Check(marker, region, state string, age float64, ageKnown bool, value float64, computable bool) LocalCheck
 //	FitPrediction(ages, values []float64) (Prediction, error); (Prediction).At(x0) (yhat, lower, upper)
 //

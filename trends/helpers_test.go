@@ -10,7 +10,7 @@ import (
 
 	"longwave/ingest"
 	"longwave/metrics"
-	"longwave/server/store"
+	"longwave/metrics/clinic"
 )
 
 // moduleRoot is the folder holding go.mod.
@@ -109,9 +109,9 @@ func goodQuality() metrics.Quality {
 
 // visitRec is a visit that passes every gate, with a PDR, a theta/alpha
 // ratio and an aperiodic exponent.
-func visitRec(id int64, date string, age, pdr float64) store.VisitRecord {
-	return store.VisitRecord{
-		Visit:           store.Visit{ID: id, PatientID: 1, Date: date, AgeYears: age, AgeKnown: true},
+func visitRec(id int64, date string, age, pdr float64) clinic.VisitRecord {
+	return clinic.VisitRecord{
+		Visit:           clinic.Visit{ID: id, PatientID: 1, Date: date, AgeYears: age, AgeKnown: true},
 		SettingsVersion: testVersion, SettingsHash: testHash,
 		Conditions: goodConditions(), Quality: goodQuality(),
 		Markers: []metrics.Marker{

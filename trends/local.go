@@ -7,6 +7,8 @@ import (
 	"strings"
 
 	"gonum.org/v1/gonum/stat"
+
+	"longwave/metrics/clinic"
 )
 
 // MinLocalControls is the fewest control participants for a local range.
@@ -14,9 +16,6 @@ import (
 // t(0.975; 18) = 2.101, is within 7 % of the normal 1.96, and one unusual
 // control moves the line little).
 const MinLocalControls = 20
-
-// ControlGroup is the store.Patient.Group of a clinic's control participants.
-const ControlGroup = "control"
 
 // LocalLabel labels every local range.
 const LocalLabel = "local"
@@ -119,13 +118,13 @@ const localMethod = "ordinary least-squares regression of value on age over the 
 // the age known. Repeated visits of one person are not independent, and
 // taking the first keeps every control's weight equal. A series with fewer
 // than MinLocalControls controls gets a model that says so.
-func BuildLocalRanges(patients []CohortPatient, opt LocalOptions) *LocalRanges {
+func BuildLocalRanges(patients []clinic.PatientCourse, opt LocalOptions) *LocalRanges {
 	out := &LocalRanges{Label: LocalLabel, Advisory: AdvisoryLocal, Method: localMethod, Models: []LocalModel{}}
 	type acc struct{ ages, values []float64 }
 	var ids []seriesID
 	data := map[seriesID]*acc{}
 	for _, cp := range patients {
-		if !strings.EqualFold(strings.TrimSpace(cp.Patient.Group), ControlGroup) {
+		if !cp.Patient.IsControl() {
 			continue
 		}
 		out.Controls++

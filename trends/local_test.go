@@ -7,7 +7,7 @@ import (
 	"testing"
 	"time"
 
-	"longwave/server/store"
+	"longwave/metrics/clinic"
 )
 
 // Worked by hand: ages 60, 70, 80 y, PDR 10.0, 9.5, 9.3 Hz.
@@ -48,14 +48,14 @@ func TestPredictionWorkedExample(t *testing.T) {
 // controls makes one control participant per age/value, each with a first
 // comparable visit carrying the value and a later visit carrying value − 1
 // (which must not enter the fit).
-func controls(ages, values []float64) []CohortPatient {
-	var out []CohortPatient
+func controls(ages, values []float64) []clinic.PatientCourse {
+	var out []clinic.PatientCourse
 	for i := range ages {
 		first := visitRec(int64(2*i+1), "2020-03-01", ages[i], values[i])
 		later := visitRec(int64(2*i+2), "2021-03-01", ages[i]+1, values[i]-1)
-		out = append(out, CohortPatient{
-			Patient: store.Patient{ID: int64(i + 1), Code: fmt.Sprintf("LH-K%02d", i+1), Group: ControlGroup},
-			Visits:  []store.VisitRecord{later, first},
+		out = append(out, clinic.PatientCourse{
+			Patient: clinic.Patient{ID: int64(i + 1), Code: fmt.Sprintf("LH-K%02d", i+1), Group: clinic.ControlGroup},
+			Visits:  []clinic.VisitRecord{later, first},
 		})
 	}
 	return out
@@ -164,7 +164,7 @@ func TestLocalRangesNeedTwentyControls(t *testing.T) {
 func TestCourseWithLocalRanges(t *testing.T) {
 	g := loadGolden(t).Prediction
 	l := BuildLocalRanges(controls(g.Ages, g.Values), LocalOptions{SettingsVersion: testVersion, SettingsHash: testHash})
-	c := BuildCourse(store.Patient{Code: "LH-0417"}, []store.VisitRecord{visitRec(1, "2024-01-10", 72, 9.1)},
+	c := BuildCourse(clinic.Patient{Code: "LH-0417"}, []clinic.VisitRecord{visitRec(1, "2024-01-10", 72, 9.1)},
 		CourseOptions{Ranges: literatureRanges(t), LocalRanges: l, SettingsVersion: testVersion, SettingsHash: testHash, Today: time.Now()})
 	pt := c.Series[0].Points[0]
 	if !pt.Local.Known || pt.Local.Label != "local" || !pt.Local.Placed || len(pt.Literature.Matches) == 0 {

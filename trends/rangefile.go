@@ -10,7 +10,7 @@ import (
 	"strconv"
 	"strings"
 
-	"longwave/server/store"
+	"longwave/metrics/clinic"
 )
 
 // Limits of a clinic's range file, so that a malformed file cannot force a
@@ -47,14 +47,14 @@ var rangeColumns = []rangeColumn{
 // numeric columns mean "not given". Blank lines and lines starting with "#"
 // are skipped. The rows are validated as NewRanges does; every error names
 // the line.
-func ParseRangesTSV(r io.Reader, set string) ([]store.ReferenceRange, error) {
+func ParseRangesTSV(r io.Reader, set string) ([]clinic.ReferenceRange, error) {
 	if strings.TrimSpace(set) == "" {
 		return nil, fmt.Errorf("trends: range file: %w: empty set name", ErrRangeFile)
 	}
 	br := bufio.NewReaderSize(r, 4096)
 	var (
 		col   map[string]int
-		rows  []store.ReferenceRange
+		rows  []clinic.ReferenceRange
 		names []string
 		line  int
 	)
@@ -115,7 +115,7 @@ func ParseRangesTSV(r io.Reader, set string) ([]store.ReferenceRange, error) {
 		if s := get("set_name"); s != "" && s != set {
 			return nil, fail("set_name %q, the file is loaded as set %q", s, set)
 		}
-		row := store.ReferenceRange{Set: set, Marker: get("marker"), Region: get("region"), State: get("state"),
+		row := clinic.ReferenceRange{Set: set, Marker: get("marker"), Region: get("region"), State: get("state"),
 			Population: get("population"), Method: get("method"), Bands: get("bands"),
 			Citation: get("citation"), Status: get("status"), Note: get("note")}
 		var perr error

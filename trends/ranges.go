@@ -9,7 +9,7 @@ import (
 	"strings"
 
 	"longwave/metrics"
-	"longwave/server/store"
+	"longwave/metrics/clinic"
 )
 
 // Advisory texts shown beside every range (DESIGN.md, "Reference ranges").
@@ -74,7 +74,7 @@ func (e *RangeError) Error() string {
 func (e *RangeError) Unwrap() error { return e.Err }
 
 // Range is one reference range as package trends hands it on: a copy of a
-// store.ReferenceRange with JSON tags. Limits, mean and SD are nil where the
+// clinic.ReferenceRange with JSON tags. Limits, mean and SD are nil where the
 // source gives none.
 type Range struct {
 	Set                   string   `json:"set"`
@@ -107,7 +107,7 @@ type Ranges struct {
 // "from memory", lower > upper, SD ≤ 0, SD without a mean, no limit and no
 // mean, a bad age band, and age bands that overlap or leave a gap within one
 // set, marker, region and state.
-func NewRanges(rows []store.ReferenceRange) (*Ranges, error) {
+func NewRanges(rows []clinic.ReferenceRange) (*Ranges, error) {
 	names := make([]string, len(rows))
 	for i, r := range rows {
 		id := r.ID
@@ -119,7 +119,7 @@ func NewRanges(rows []store.ReferenceRange) (*Ranges, error) {
 	return newRanges(rows, names)
 }
 
-func newRanges(rows []store.ReferenceRange, names []string) (*Ranges, error) {
+func newRanges(rows []clinic.ReferenceRange, names []string) (*Ranges, error) {
 	out := &Ranges{rows: make([]Range, len(rows))}
 	for i, r := range rows {
 		if err := validRow(r); err != nil {
@@ -177,7 +177,7 @@ func setRank(set string) int {
 
 func finite(p *float64) bool { return p == nil || (!math.IsNaN(*p) && !math.IsInf(*p, 0)) }
 
-func validRow(r store.ReferenceRange) error {
+func validRow(r clinic.ReferenceRange) error {
 	switch {
 	case strings.TrimSpace(r.Set) == "":
 		return fmt.Errorf("%w: set name empty", ErrBadRange)

@@ -2,77 +2,30 @@ package trends
 
 import (
 	"bytes"
-	"database/sql"
+	"encoding/json"
 	"errors"
 	"os"
 	"path/filepath"
 	"strings"
 	"testing"
 
-	"longwave/server/store"
-
-	_ "modernc.org/sqlite"
+	"longwave/metrics/clinic"
 )
 
-// loadMigrationRows applies migrations/0002_reference_ranges.sql to a fresh
-// SQLite file (nothing else created) and reads its rows back.
-func loadMigrationRows(t *testing.T) []store.ReferenceRange {
+// loadMigrationRows reads the rows of migrations/0002_reference_ranges.sql
+// from testdata/trends/literature_ranges.json, which the store's
+// TestLiteratureRowsFile keeps equal to what SQLite gives back after the
+// migration (and the schema's own refusals are tested there too), so that
+// trends tests its lookups without opening a database.
+func loadMigrationRows(t *testing.T) []clinic.ReferenceRange {
 	t.Helper()
-	sqlText, err := os.ReadFile(filepath.Join(moduleRoot(t), "migrations", "0002_reference_ranges.sql"))
+	b, err := os.ReadFile(filepath.Join(moduleRoot(t), "testdata", "trends", "literature_ranges.json"))
 	if err != nil {
 		t.Fatal(err)
 	}
-	db, err := sql.Open("sqlite", filepath.Join(t.TempDir(), "ranges.db"))
-	if err != nil {
-		t.Fatal(err)
-	}
-	defer db.Close()
-	tx, err := db.Begin()
-	if err != nil {
-		t.Fatal(err)
-	}
-	if _, err := tx.Exec(string(sqlText)); err != nil {
-		t.Fatalf("migration 0002: %v", err)
-	}
-	if err := tx.Commit(); err != nil {
-		t.Fatal(err)
-	}
-	// The schema itself refuses rows the loader would refuse.
-	for _, bad := range []string{
-		`INSERT INTO reference_ranges (set_name, marker, region, state, age_min, age_max, population, method, bands, citation, status) VALUES ('x','pdr_frequency','posterior','closed',1,2,'p','m','b','c','abstract')`,
-		`INSERT INTO reference_ranges (set_name, marker, region, state, age_min, age_max, population, method, bands, citation, status) VALUES ('x','pdr_frequency','posterior','closed',3,2,'p','m','b','c','checked')`,
-		`INSERT INTO reference_ranges (set_name, marker, region, state, age_min, age_max, sd, mean, population, method, bands, citation, status) VALUES ('x','pdr_frequency','posterior','closed',1,2,0,9,'p','m','b','c','checked')`,
-		`INSERT INTO reference_ranges (set_name, marker, region, state, age_min, age_max, lower, upper, population, method, bands, citation, status) VALUES ('x','pdr_frequency','posterior','closed',1,2,'low',9,'p','m','b','c','checked')`,
-	} {
-		if _, err := db.Exec(bad); err == nil {
-			t.Errorf("schema accepted %s", bad)
-		}
-	}
-	rows, err := db.Query(`SELECT id, set_name, marker, region, state, age_min, age_max, lower, upper, mean, sd,
-		expected_change_per_year, population, method, bands, citation, status, note FROM reference_ranges ORDER BY id`)
-	if err != nil {
-		t.Fatal(err)
-	}
-	defer rows.Close()
-	var out []store.ReferenceRange
-	for rows.Next() {
-		var r store.ReferenceRange
-		var lo, hi, mean, sd, exp sql.NullFloat64
-		if err := rows.Scan(&r.ID, &r.Set, &r.Marker, &r.Region, &r.State, &r.AgeMin, &r.AgeMax, &lo, &hi, &mean, &sd, &exp,
-			&r.Population, &r.Method, &r.Bands, &r.Citation, &r.Status, &r.Note); err != nil {
-			t.Fatal(err)
-		}
-		ptr := func(n sql.NullFloat64) *float64 {
-			if !n.Valid {
-				return nil
-			}
-			return &n.Float64
-		}
-		r.Lower, r.Upper, r.Mean, r.SD, r.ExpectedChangePerYear = ptr(lo), ptr(hi), ptr(mean), ptr(sd), ptr(exp)
-		out = append(out, r)
-	}
-	if err := rows.Err(); err != nil {
-		t.Fatal(err)
+	var out []clinic.ReferenceRange
+	if err := json.Unmarshal(b, &out); err != nil {
+		t.Fatalf("literature_ranges.json: %v", err)
 	}
 	return out
 }
@@ -162,7 +115,7 @@ func TestMigrationRowsValidate(t *testing.T) {
 }
 
 func TestPlacePositions(t *testing.T) {
-	r, err := NewRanges([]store.ReferenceRange{{Set: "literature", Marker: "pdr_frequency", Region: "posterior", State: "closed",
+	r, err := NewRanges([]clinic.ReferenceRange{{Set: "literature", Marker: "pdr_frequency", Region: "posterior", State: "closed",
 		AgeMin: 15, AgeMax: 120, Lower: fp(8.5), Upper: fp(11.5), Population: "p", Method: "m", Bands: "b", Citation: "c", Status: StatusChecked}})
 	if err != nil {
 		t.Fatal(err)
@@ -185,7 +138,7 @@ func TestPlacePositions(t *testing.T) {
 		}
 	}
 	// A row for any region and state.
-	anyRow, err := NewRanges([]store.ReferenceRange{{Set: "clinic-a", Marker: "rel_alpha", Region: AnyRegion, State: AnyState,
+	anyRow, err := NewRanges([]clinic.ReferenceRange{{Set: "clinic-a", Marker: "rel_alpha", Region: AnyRegion, State: AnyState,
 		AgeMin: 0, AgeMax: 120, Lower: fp(0.1), Upper: fp(0.6), Population: "p", Method: "m", Bands: "b", Citation: "c", Status: StatusChecked}})
 	if err != nil {
 		t.Fatal(err)
@@ -202,43 +155,43 @@ func TestPlacePositions(t *testing.T) {
 }
 
 func TestNewRangesErrors(t *testing.T) {
-	good := func() store.ReferenceRange {
-		return store.ReferenceRange{ID: 7, Set: "clinic-a", Marker: "pdr_frequency", Region: "posterior", State: "closed",
+	good := func() clinic.ReferenceRange {
+		return clinic.ReferenceRange{ID: 7, Set: "clinic-a", Marker: "pdr_frequency", Region: "posterior", State: "closed",
 			AgeMin: 50, AgeMax: 70, Lower: fp(8), Upper: fp(11), Mean: fp(9.5), SD: fp(0.6),
 			Population: "p", Method: "m", Bands: "b", Citation: "Clinic A controls 2025", Status: StatusFromMemory}
 	}
 	tests := []struct {
 		name string
-		edit func(rows []store.ReferenceRange) []store.ReferenceRange
+		edit func(rows []clinic.ReferenceRange) []clinic.ReferenceRange
 		want error
 		text string
 	}{
-		{"unknown marker", func(r []store.ReferenceRange) []store.ReferenceRange { r[0].Marker = "alpha_power"; return r }, ErrUnknownMarker, "row 7"},
-		{"missing citation", func(r []store.ReferenceRange) []store.ReferenceRange { r[0].Citation = "  "; return r }, ErrMissingCitation, "row 7"},
-		{"bad status", func(r []store.ReferenceRange) []store.ReferenceRange { r[0].Status = "abstract"; return r }, ErrBadStatus, "row 7"},
-		{"lower > upper", func(r []store.ReferenceRange) []store.ReferenceRange { r[0].Lower = fp(12); return r }, ErrBadRange, "lower 12 > upper 11"},
-		{"sd 0", func(r []store.ReferenceRange) []store.ReferenceRange { r[0].SD = fp(0); return r }, ErrBadRange, "sd 0"},
-		{"sd < 0", func(r []store.ReferenceRange) []store.ReferenceRange { r[0].SD = fp(-0.1); return r }, ErrBadRange, "sd -0.1"},
-		{"sd without mean", func(r []store.ReferenceRange) []store.ReferenceRange { r[0].Mean = nil; return r }, ErrBadRange, "without a mean"},
-		{"no values", func(r []store.ReferenceRange) []store.ReferenceRange {
+		{"unknown marker", func(r []clinic.ReferenceRange) []clinic.ReferenceRange { r[0].Marker = "alpha_power"; return r }, ErrUnknownMarker, "row 7"},
+		{"missing citation", func(r []clinic.ReferenceRange) []clinic.ReferenceRange { r[0].Citation = "  "; return r }, ErrMissingCitation, "row 7"},
+		{"bad status", func(r []clinic.ReferenceRange) []clinic.ReferenceRange { r[0].Status = "abstract"; return r }, ErrBadStatus, "row 7"},
+		{"lower > upper", func(r []clinic.ReferenceRange) []clinic.ReferenceRange { r[0].Lower = fp(12); return r }, ErrBadRange, "lower 12 > upper 11"},
+		{"sd 0", func(r []clinic.ReferenceRange) []clinic.ReferenceRange { r[0].SD = fp(0); return r }, ErrBadRange, "sd 0"},
+		{"sd < 0", func(r []clinic.ReferenceRange) []clinic.ReferenceRange { r[0].SD = fp(-0.1); return r }, ErrBadRange, "sd -0.1"},
+		{"sd without mean", func(r []clinic.ReferenceRange) []clinic.ReferenceRange { r[0].Mean = nil; return r }, ErrBadRange, "without a mean"},
+		{"no values", func(r []clinic.ReferenceRange) []clinic.ReferenceRange {
 			r[0].Lower, r[0].Upper, r[0].Mean, r[0].SD = nil, nil, nil, nil
 			return r
 		}, ErrBadRange, "neither"},
-		{"ages reversed", func(r []store.ReferenceRange) []store.ReferenceRange { r[0].AgeMin = 80; return r }, ErrBadRange, "age band 80–70"},
-		{"bad state", func(r []store.ReferenceRange) []store.ReferenceRange { r[0].State = "EC"; return r }, ErrBadRange, "state"},
-		{"overlap", func(r []store.ReferenceRange) []store.ReferenceRange {
+		{"ages reversed", func(r []clinic.ReferenceRange) []clinic.ReferenceRange { r[0].AgeMin = 80; return r }, ErrBadRange, "age band 80–70"},
+		{"bad state", func(r []clinic.ReferenceRange) []clinic.ReferenceRange { r[0].State = "EC"; return r }, ErrBadRange, "state"},
+		{"overlap", func(r []clinic.ReferenceRange) []clinic.ReferenceRange {
 			n := good()
 			n.ID, n.AgeMin, n.AgeMax = 8, 69, 90
 			return append(r, n)
 		}, ErrAgeOverlap, "row 8"},
-		{"gap", func(r []store.ReferenceRange) []store.ReferenceRange {
+		{"gap", func(r []clinic.ReferenceRange) []clinic.ReferenceRange {
 			n := good()
 			n.ID, n.AgeMin, n.AgeMax = 8, 71, 90
 			return append(r, n)
 		}, ErrAgeGap, "ages 70–71"},
 	}
 	for _, tt := range tests {
-		_, err := NewRanges(tt.edit([]store.ReferenceRange{good()}))
+		_, err := NewRanges(tt.edit([]clinic.ReferenceRange{good()}))
 		var re *RangeError
 		if !errors.Is(err, tt.want) || !errors.As(err, &re) || !strings.Contains(err.Error(), tt.text) {
 			t.Errorf("%s: error %v, want %v naming %q", tt.name, err, tt.want, tt.text)
@@ -248,7 +201,7 @@ func TestNewRangesErrors(t *testing.T) {
 	a, b, c := good(), good(), good()
 	b.ID, b.AgeMin, b.AgeMax = 8, 70, 90
 	c.ID, c.Set = 9, "clinic-b"
-	if _, err := NewRanges([]store.ReferenceRange{a, b, c}); err != nil {
+	if _, err := NewRanges([]clinic.ReferenceRange{a, b, c}); err != nil {
 		t.Errorf("adjacent bands: %v", err)
 	}
 }

@@ -9,7 +9,7 @@ import (
 
 	"longwave/ingest"
 	"longwave/metrics"
-	"longwave/server/store"
+	"longwave/metrics/clinic"
 )
 
 // Rule names, as they appear in metrics.Flag.Rule.
@@ -307,7 +307,7 @@ func checkEyeStates(c ingest.Conditions, q metrics.Quality) []metrics.Flag {
 // CheckSettings flags a visit whose markers were made by processing settings
 // other than the current version and hash: its numbers are not comparable
 // until the recording is processed again. An empty hash skips the hash test.
-func CheckSettings(v store.VisitRecord, version, hash string) []metrics.Flag {
+func CheckSettings(v clinic.VisitRecord, version, hash string) []metrics.Flag {
 	switch {
 	case v.SettingsVersion == "":
 		return []metrics.Flag{{Rule: RuleOtherSettings, Severity: metrics.NotComparable,
@@ -330,7 +330,7 @@ func CheckSettings(v store.VisitRecord, version, hash string) []metrics.Flag {
 // the current one: a change of line frequency, recording reference,
 // equipment, sampling rate or hardware filters. Values a visit does not state
 // are not compared.
-func CompareVisits(prev, cur store.VisitRecord) []metrics.Flag {
+func CompareVisits(prev, cur clinic.VisitRecord) []metrics.Flag {
 	var out []metrics.Flag
 	when := "at the visit of " + prev.Visit.Date // one small string per pair
 	if a, b := lineFrequency(prev), lineFrequency(cur); a > 0 && b > 0 && math.Abs(a-b) > LineFrequencyTolerance {
@@ -375,7 +375,7 @@ func edgeChanged(a, b ingest.Frequency) bool {
 
 // lineFrequency is the line frequency metrics found, else the one the
 // recording states, else 0.
-func lineFrequency(v store.VisitRecord) float64 {
+func lineFrequency(v clinic.VisitRecord) float64 {
 	if v.Quality.LineFrequency > 0 {
 		return v.Quality.LineFrequency
 	}

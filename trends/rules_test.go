@@ -7,7 +7,7 @@ import (
 
 	"longwave/ingest"
 	"longwave/metrics"
-	"longwave/server/store"
+	"longwave/metrics/clinic"
 )
 
 func rulesOf(flags []metrics.Flag) []string {
@@ -376,28 +376,28 @@ func TestCheckSettings(t *testing.T) {
 func TestCompareVisits(t *testing.T) {
 	tests := []struct {
 		name string
-		edit func(prev, cur *store.VisitRecord)
+		edit func(prev, cur *clinic.VisitRecord)
 		want []string
 	}{
-		{"same", func(p, c *store.VisitRecord) {}, nil},
-		{"line 50→60", func(p, c *store.VisitRecord) { c.Quality.LineFrequency = 60 }, []string{RuleLineFrequencyChange}},
-		{"line 50→50.9", func(p, c *store.VisitRecord) { c.Quality.LineFrequency = 50.9 }, nil},
-		{"line 50→51 (at tolerance)", func(p, c *store.VisitRecord) { c.Quality.LineFrequency = 51 }, nil},
-		{"line 50→51.1", func(p, c *store.VisitRecord) { c.Quality.LineFrequency = 51.1 }, []string{RuleLineFrequencyChange}},
-		{"line from sidecar", func(p, c *store.VisitRecord) { c.Quality.LineFrequency = 0; c.Conditions.LineFrequency = 60 }, []string{RuleLineFrequencyChange}},
-		{"line unknown", func(p, c *store.VisitRecord) { c.Quality.LineFrequency = 0; c.Conditions.LineFrequency = 0 }, nil},
-		{"reference case", func(p, c *store.VisitRecord) { c.Conditions.Reference = "ref" }, nil},
-		{"reference Cz", func(p, c *store.VisitRecord) { c.Conditions.Reference = "Cz" }, []string{RuleReferenceChange}},
-		{"reference unstated", func(p, c *store.VisitRecord) { c.Conditions.Reference = "" }, nil},
-		{"equipment", func(p, c *store.VisitRecord) { c.Conditions.Equipment = "Amp-9" }, []string{RuleEquipmentChange}},
-		{"rate 256→256.1", func(p, c *store.VisitRecord) { c.Conditions.SampleRate = 256.1 }, nil},
-		{"rate 256→256.3 (0.12 %)", func(p, c *store.VisitRecord) { c.Conditions.SampleRate = 256.3 }, []string{RuleSampleRateChange}},
-		{"rate 256→512", func(p, c *store.VisitRecord) { c.Conditions.SampleRate = 512 }, []string{RuleSampleRateChange}},
-		{"high-pass 0.5→0.505", func(p, c *store.VisitRecord) { c.Conditions.Filters.HighPass.Hz = 0.505 }, nil},
-		{"high-pass 0.5→0.52", func(p, c *store.VisitRecord) { c.Conditions.Filters.HighPass.Hz = 0.52 }, []string{RuleFiltersChange}},
-		{"high-pass 0.5→0.16", func(p, c *store.VisitRecord) { c.Conditions.Filters.HighPass.Hz = 0.16 }, []string{RuleFiltersChange}},
-		{"low-pass unknown now", func(p, c *store.VisitRecord) { c.Conditions.Filters.LowPass.Known = false }, nil},
-		{"several", func(p, c *store.VisitRecord) {
+		{"same", func(p, c *clinic.VisitRecord) {}, nil},
+		{"line 50→60", func(p, c *clinic.VisitRecord) { c.Quality.LineFrequency = 60 }, []string{RuleLineFrequencyChange}},
+		{"line 50→50.9", func(p, c *clinic.VisitRecord) { c.Quality.LineFrequency = 50.9 }, nil},
+		{"line 50→51 (at tolerance)", func(p, c *clinic.VisitRecord) { c.Quality.LineFrequency = 51 }, nil},
+		{"line 50→51.1", func(p, c *clinic.VisitRecord) { c.Quality.LineFrequency = 51.1 }, []string{RuleLineFrequencyChange}},
+		{"line from sidecar", func(p, c *clinic.VisitRecord) { c.Quality.LineFrequency = 0; c.Conditions.LineFrequency = 60 }, []string{RuleLineFrequencyChange}},
+		{"line unknown", func(p, c *clinic.VisitRecord) { c.Quality.LineFrequency = 0; c.Conditions.LineFrequency = 0 }, nil},
+		{"reference case", func(p, c *clinic.VisitRecord) { c.Conditions.Reference = "ref" }, nil},
+		{"reference Cz", func(p, c *clinic.VisitRecord) { c.Conditions.Reference = "Cz" }, []string{RuleReferenceChange}},
+		{"reference unstated", func(p, c *clinic.VisitRecord) { c.Conditions.Reference = "" }, nil},
+		{"equipment", func(p, c *clinic.VisitRecord) { c.Conditions.Equipment = "Amp-9" }, []string{RuleEquipmentChange}},
+		{"rate 256→256.1", func(p, c *clinic.VisitRecord) { c.Conditions.SampleRate = 256.1 }, nil},
+		{"rate 256→256.3 (0.12 %)", func(p, c *clinic.VisitRecord) { c.Conditions.SampleRate = 256.3 }, []string{RuleSampleRateChange}},
+		{"rate 256→512", func(p, c *clinic.VisitRecord) { c.Conditions.SampleRate = 512 }, []string{RuleSampleRateChange}},
+		{"high-pass 0.5→0.505", func(p, c *clinic.VisitRecord) { c.Conditions.Filters.HighPass.Hz = 0.505 }, nil},
+		{"high-pass 0.5→0.52", func(p, c *clinic.VisitRecord) { c.Conditions.Filters.HighPass.Hz = 0.52 }, []string{RuleFiltersChange}},
+		{"high-pass 0.5→0.16", func(p, c *clinic.VisitRecord) { c.Conditions.Filters.HighPass.Hz = 0.16 }, []string{RuleFiltersChange}},
+		{"low-pass unknown now", func(p, c *clinic.VisitRecord) { c.Conditions.Filters.LowPass.Known = false }, nil},
+		{"several", func(p, c *clinic.VisitRecord) {
 			c.Quality.LineFrequency = 60
 			c.Conditions.Equipment = "Amp-9"
 			c.Conditions.Reference = "A1"

@@ -166,6 +166,32 @@ type CourseChart struct {
 	Reference string
 	HasBand   bool
 	Status    string
+	// Norm is the marker against the clinic's controls (nil: not shown).
+	Norm *NormView
+}
+
+// NormView is a marker's course against the clinic's control norm: the
+// verdict in words, the figures behind it, the basis, and the published
+// ageing notes beside it, all advisory.
+type NormView struct {
+	// Verdict is the sentence for people; Known false when it says why
+	// there is none; Concern when the change goes the way that worries.
+	Verdict string
+	Known   bool
+	Concern bool
+	Figures []Pair
+	Basis   string
+	Note    string
+	// Advisory is shown under the verdict.
+	Advisory   string
+	Literature []LiteratureView
+}
+
+// LiteratureView is one published ageing note as shown.
+type LiteratureView struct {
+	Text    string
+	PerYear string // "" when the note gives no rate
+	Source  string
 }
 
 // VisitRow is one visit in the course's table.

@@ -20,6 +20,7 @@ import (
 	"longwave/ingest"
 	"longwave/ingest/synth"
 	"longwave/metrics"
+	"longwave/metrics/clinic"
 	"longwave/server/intake"
 )
 
@@ -88,10 +89,12 @@ type Visit struct {
 	Seed                                                   uint64
 }
 
-// Plan lays out the invented clinic: 24 patients with 3 to 8 yearly visits
-// over up to 8 years, the last visits falling between about 2 and 20 months
-// before today so that some patients are due and some overdue. The same
-// today gives the same plan.
+// Plan lays out the invented clinic: 19 patients with 3 to 8 yearly visits
+// over up to 8 years (8 who age healthily, 11 whose rhythm slows steadily)
+// and ControlCount control participants with 3 to 6 yearly visits, aged
+// about 55 to 85, the clinic's own norm. The last visits fall between about
+// 2 and 20 months before today so that some people are due and some
+// overdue. The same today gives the same plan.
 func Plan(today time.Time) []Patient {
 	rng := rand.New(rand.NewPCG(20261201, 7))
 	today = time.Date(today.Year(), today.Month(), today.Day(), 0, 0, 0, 0, time.UTC)
@@ -106,58 +109,51 @@ func Plan(today time.Time) []Patient {
 		"", "came straight from a long drive", "", "mild cold", "",
 	}
 	var out []Patient
-	for i := 0; i < 24; i++ {
-		p := Patient{Code: fmt.Sprintf("LMC-%03d", 101+i)}
+	for i := 0; i < patientCount+ControlCount; i++ {
+		var p Patient
+		var nVisits, ageAtFirst int
 		switch {
-		case i < 5:
-			p.Group, p.Course = "control", HealthyAgeing
-		case i < 13:
+		case i < patientCount:
+			p.Code = fmt.Sprintf("LMC-%03d", 101+i)
 			p.Group, p.Course = "patient", HealthyAgeing
+			if i >= healthyPatients {
+				p.Course = SteadySlowing
+			}
+			nVisits = 3 + rng.IntN(6) // 3..8
+			ageAtFirst = 58 + rng.IntN(20)
 		default:
-			p.Group, p.Course = "patient", SteadySlowing
+			p.Code = fmt.Sprintf("LMC-%03d", 201+i-patientCount)
+			p.Group, p.Course = clinic.ControlGroup, HealthyAgeing
+			nVisits = 3 + rng.IntN(4)                   // 3..6
+			ageAtFirst = 55 + rng.IntN(85-55-nVisits+1) // last visit at 84 at most
 		}
 		if rng.IntN(2) == 0 {
 			p.Sex = "F"
 		} else {
 			p.Sex = "M"
 		}
-		nVisits := 3 + rng.IntN(6) // 3..8
 		lastAgo := 60 + rng.IntN(540)
 		last := today.AddDate(0, 0, -lastAgo)
 		first := last.AddDate(-(nVisits - 1), 0, 0)
-		ageAtFirst := 58 + rng.IntN(20)
 		p.BirthYear = first.Year() - ageAtFirst
-		alpha0 := 9.4 + rng.Float64()*1.0
+		who := drawPerson(rng, p.Course, float64(ageAtFirst))
 		for v := 0; v < nVisits; v++ {
-			years := float64(v)
 			date := first.AddDate(v, 0, rng.IntN(41)-20)
 			if v == nVisits-1 {
 				date = last
 			}
 			vis := Visit{
-				Date:     date,
-				Context:  contexts[rng.IntN(len(contexts))],
-				Seed:     uint64(1000*i + v + 1),
-				Exponent: 1.4 + 0.1*rng.Float64(),
+				Date:    date,
+				Context: contexts[rng.IntN(len(contexts))],
+				Seed:    uint64(1000*i + v + 1),
 			}
-			switch p.Course {
-			case HealthyAgeing:
-				vis.AlphaHz = alpha0 - 0.03*years + 0.05*(rng.Float64()-0.5)
-				vis.AlphaPower = 90
-				vis.ThetaPower = 6
-				vis.Attenuation = 0.65
-			case SteadySlowing:
-				vis.AlphaHz = alpha0 - 0.3*years + 0.05*(rng.Float64()-0.5)
-				vis.AlphaPower = 90 - 6*years
-				vis.ThetaPower = 6 + 3*years
-				vis.Attenuation = math.Max(0.65-0.07*years, 0.1)
-			}
+			who.visit(rng, &vis, float64(v))
 			p.Visits = append(p.Visits, vis)
 		}
 		out = append(out, p)
 	}
 	// One oddity each on a middle or late visit of a patient with enough
-	// visits, spread over both courses.
+	// visits, spread over both courses; controls only when patients run out.
 	k := 0
 	for i := range out {
 		if k == len(oddities) {
@@ -166,19 +162,98 @@ func Plan(today time.Time) []Patient {
 		if len(out[i].Visits) < 4 && i%3 != 0 {
 			continue
 		}
-		at := len(out[i].Visits) - 2
-		if at < 1 {
-			at = 1
-		}
+		at := max(len(out[i].Visits)-2, 1)
 		out[i].Visits[at].Oddity = oddities[k]
 		k++
 	}
 	return out
 }
 
-// Spec returns the synthetic recording of a planned visit. The recording is
-// 4 minutes at 250 Hz: eyes closed 0–100 s, open 100–160 s, closed 160–220 s,
-// open 220–240 s, unless the visit's oddity changes it.
+// The shape of the plan.
+const (
+	// ControlCount is the number of control participants: more than the 20
+	// the local ranges need, and enough persons for the control model.
+	ControlCount    = 26
+	patientCount    = 19
+	healthyPatients = 8
+)
+
+// Healthy ageing as the demo draws it, per person and per visit. These are
+// invented figures for an invented clinic, chosen to look like a memory
+// clinic's healthy older controls (values from memory, not a reference):
+// the posterior rhythm about 10 Hz at 55, lower by about 0.02 Hz per year of
+// age, 0.45 Hz between persons; each person's own yearly change drawn around
+// −0.02 Hz/year with an SD of 0.03 Hz/year; and 0.12 Hz visit-to-visit
+// variation on top of the recording's own measurement noise. The other
+// markers vary by person and visit in the same spirit.
+const (
+	healthyPDRAt55       = 10.0  // Hz
+	healthyPDRPerYearAge = -0.02 // Hz per year of age, between persons
+	healthyPDRPersonSD   = 0.45  // Hz
+	healthySlopeMean     = -0.02 // Hz per year, within a person
+	healthySlopeSD       = 0.03  // Hz per year
+	healthyVisitSD       = 0.12  // Hz
+	// The invented slowing of SteadySlowing, in Hz per year.
+	slowingPerYear = -0.3
+)
+
+// person is the drawn truth of one invented person: levels at the first
+// visit and yearly changes.
+type person struct {
+	course                                Course
+	alpha0, alphaSlope                    float64
+	power0, theta0, attenuation0, expo0   float64
+	powerSlope, thetaSlope, attenSlope    float64
+	exponentSlope, thetaNoise, attenNoise float64
+}
+
+func drawPerson(rng *rand.Rand, c Course, ageAtFirst float64) person {
+	w := person{course: c}
+	switch c {
+	case HealthyAgeing:
+		w.alpha0 = healthyPDRAt55 + healthyPDRPerYearAge*(ageAtFirst-55) + healthyPDRPersonSD*rng.NormFloat64()
+		w.alphaSlope = healthySlopeMean + healthySlopeSD*rng.NormFloat64()
+		w.power0 = 90 + 10*rng.NormFloat64()
+		w.theta0 = 6 + 0.8*rng.NormFloat64()
+		w.attenuation0 = 0.65 + 0.06*rng.NormFloat64()
+		w.expo0 = 1.45 + 0.06*rng.NormFloat64()
+		w.powerSlope, w.thetaSlope, w.attenSlope, w.exponentSlope = -0.5, 0.05, -0.004, -0.004
+		w.thetaNoise, w.attenNoise = 0.4, 0.03
+	case SteadySlowing:
+		w.alpha0 = 9.4 + rng.Float64()*1.0
+		w.alphaSlope = slowingPerYear
+		w.power0, w.theta0, w.attenuation0, w.expo0 = 90, 6, 0.65, 1.45
+		w.powerSlope, w.thetaSlope, w.attenSlope = -6, 3, -0.07
+	}
+	return w
+}
+
+// visit fills the truth of the visit years after the person's first.
+func (w person) visit(rng *rand.Rand, v *Visit, years float64) {
+	switch w.course {
+	case HealthyAgeing:
+		v.AlphaHz = w.alpha0 + w.alphaSlope*years + healthyVisitSD*rng.NormFloat64()
+		v.AlphaPower = math.Max(w.power0+w.powerSlope*years+5*rng.NormFloat64(), 30)
+		v.ThetaPower = math.Max(w.theta0+w.thetaSlope*years+w.thetaNoise*rng.NormFloat64(), 1)
+		v.Attenuation = math.Min(math.Max(w.attenuation0+w.attenSlope*years+w.attenNoise*rng.NormFloat64(), 0.1), 0.9)
+		v.Exponent = w.expo0 + w.exponentSlope*years + 0.03*rng.NormFloat64()
+	case SteadySlowing:
+		v.AlphaHz = w.alpha0 + w.alphaSlope*years + 0.05*(rng.Float64()-0.5)
+		v.AlphaPower = w.power0 + w.powerSlope*years
+		v.ThetaPower = w.theta0 + w.thetaSlope*years
+		v.Attenuation = math.Max(w.attenuation0+w.attenSlope*years, 0.1)
+		v.Exponent = 1.4 + 0.1*rng.Float64()
+	}
+}
+
+// Spec returns the synthetic recording of a planned visit. A patient's
+// recording is 4 minutes at 250 Hz: eyes closed 0–100 s, open 100–160 s,
+// closed 160–220 s, open 220–240 s, unless the visit's oddity changes it. A
+// control's is shorter, so that the demo's 26 controls do not double its
+// start-up: 150 s, eyes closed 0–75 s, open 75–105 s, closed 105–135 s,
+// open 135–150 s (still about 100 s of eyes-closed data, well above the 60 s
+// a visit needs; every visit of a control is recorded alike, so their
+// courses stay comparable).
 func (p Patient) Spec(v Visit) synth.Spec {
 	s := synth.Default()
 	s.Seed = v.Seed
@@ -188,6 +263,15 @@ func (p Patient) Spec(v Visit) synth.Spec {
 		{State: ingest.EyesOpen, Start: 100, End: 160},
 		{State: ingest.EyesClosed, Start: 160, End: 220},
 		{State: ingest.EyesOpen, Start: 220, End: 240},
+	}
+	if p.Group == clinic.ControlGroup {
+		s.Duration = 150
+		s.Periods = []ingest.Period{
+			{State: ingest.EyesClosed, Start: 0, End: 75},
+			{State: ingest.EyesOpen, Start: 75, End: 105},
+			{State: ingest.EyesClosed, Start: 105, End: 135},
+			{State: ingest.EyesOpen, Start: 135, End: 150},
+		}
 	}
 	s.AlphaHz = v.AlphaHz
 	s.AlphaPower = v.AlphaPower

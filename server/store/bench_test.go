@@ -60,7 +60,10 @@ func TestSaveVisitUnderBudget(t *testing.T) {
 
 // BenchmarkCohort5000 reads a cohort of 5,000 patients with 3 visits each
 // (49 markers a visit) the way the cohort page does: AllVisitRecords with
-// the few marker names it shows, and with all markers (the export).
+// the few marker names it shows, and with all markers (the export); and,
+// with one patient in 50 a control (100 controls), the controls' stamp the
+// norms cache checks on every cohort or course build and the controls'
+// records a refit reads.
 func BenchmarkCohort5000(b *testing.B) {
 	s := mustOpen(b)
 	ctx := context.Background()
@@ -68,7 +71,11 @@ func BenchmarkCohort5000(b *testing.B) {
 	a.Result.Display = metrics.Display{}
 	err := s.inTx(ctx, func(tx *sql.Tx) error {
 		for i := 0; i < 5000; i++ {
-			pid, err := s.upsertPatient(ctx, tx, Patient{Code: fmt.Sprintf("C-%05d", i), BirthYear: 1940 + i%30})
+			group := "patient"
+			if i%50 == 0 {
+				group = "control"
+			}
+			pid, err := s.upsertPatient(ctx, tx, Patient{Code: fmt.Sprintf("C-%05d", i), BirthYear: 1940 + i%30, Group: group})
 			if err != nil {
 				return err
 			}
@@ -104,6 +111,20 @@ func BenchmarkCohort5000(b *testing.B) {
 		for i := 0; i < b.N; i++ {
 			if _, err := s.AllVisitRecords(ctx); err != nil {
 				b.Fatal(err)
+			}
+		}
+	})
+	b.Run("control-stamp", func(b *testing.B) {
+		for i := 0; i < b.N; i++ {
+			if _, err := s.GroupStamp(ctx, "control"); err != nil {
+				b.Fatal(err)
+			}
+		}
+	})
+	b.Run("control-records", func(b *testing.B) {
+		for i := 0; i < b.N; i++ {
+			if pcs, err := s.GroupVisitRecords(ctx, "control"); err != nil || len(pcs) != 100 {
+				b.Fatal(len(pcs), err)
 			}
 		}
 	})

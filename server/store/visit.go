@@ -288,19 +288,52 @@ func (s *Store) VisitDisplay(ctx context.Context, id int64) (metrics.Display, er
 	return d, nil
 }
 
-// PatientCourse pairs a patient with its visits ordered by date.
-type PatientCourse struct {
-	Patient Patient
-	Visits  []VisitRecord
-}
-
 // AllVisitRecords returns every patient (ordered by code) with its visits
 // (ordered by date), for the cohort page and the export. It runs five
 // queries whatever the number of patients. With marker names given, only
 // markers of those names are loaded (the cohort page needs a few of the
 // ~40 per visit).
 func (s *Store) AllVisitRecords(ctx context.Context, markerNames ...string) ([]PatientCourse, error) {
-	rows, err := s.r.QueryContext(ctx, `SELECT `+patientColumns+` FROM patients ORDER BY code`)
+	return s.courses(ctx, "1", "1", markerNames)
+}
+
+// GroupVisitRecords returns the patients of one group (Patient.Group equal
+// to group, ignoring ASCII case and surrounding spaces, as
+// clinic.Patient.IsControl compares), ordered by code, with all their
+// visits and markers: the clinic's controls for their norms, without
+// reading any other patient.
+func (s *Store) GroupVisitRecords(ctx context.Context, group string) ([]PatientCourse, error) {
+	const match = `lower(trim(group_name)) = lower(trim(?))`
+	return s.courses(ctx, match, `v.patient_id IN (SELECT id FROM patients WHERE `+match+`)`, nil, group)
+}
+
+// GroupStamp is a fingerprint of everything GroupVisitRecords would return
+// for group: it changes when a patient of the group is added or changed,
+// or one of their visits is added, analysed again or has its markers or
+// flags replaced. A cache of values built from the group (the control
+// norms) compares stamps instead of rebuilding on a timer. One query of
+// aggregates, no rows.
+func (s *Store) GroupStamp(ctx context.Context, group string) (string, error) {
+	const ids = `SELECT id FROM patients WHERE lower(trim(group_name)) = lower(trim(?1))`
+	const visits = `SELECT id FROM visits WHERE patient_id IN (` + ids + `)`
+	var stamp string
+	err := s.r.QueryRowContext(ctx, `
+		SELECT (SELECT count(*) || '/' || coalesce(max(updated_at), '') FROM patients WHERE id IN (`+ids+`))
+		    || '|' || (SELECT count(*) || '/' || coalesce(max(id), 0) FROM visits WHERE id IN (`+visits+`))
+		    || '|' || (SELECT count(*) || '/' || coalesce(max(analysed_at), '') FROM conditions WHERE visit_id IN (`+visits+`))
+		    || '|' || (SELECT count(*) || '/' || coalesce(max(id), 0) || '/' || total(value) FROM markers WHERE visit_id IN (`+visits+`))
+		    || '|' || (SELECT count(*) || '/' || coalesce(max(id), 0) FROM flags WHERE visit_id IN (`+visits+`))`,
+		group).Scan(&stamp)
+	if err != nil {
+		return "", fmt.Errorf("store: group %q stamp: %w", group, err)
+	}
+	return stamp, nil
+}
+
+// courses returns the patients matching patientWhere (over patients) with
+// the visits matching visitWhere (over visits v), both taking args.
+func (s *Store) courses(ctx context.Context, patientWhere, visitWhere string, markerNames []string, args ...any) ([]PatientCourse, error) {
+	rows, err := s.r.QueryContext(ctx, `SELECT `+patientColumns+` FROM patients WHERE `+patientWhere+` ORDER BY code`, args...)
 	if err != nil {
 		return nil, fmt.Errorf("store: patients: %w", err)
 	}
@@ -319,7 +352,10 @@ func (s *Store) AllVisitRecords(ctx context.Context, markerNames ...string) ([]P
 	if err := rows.Err(); err != nil {
 		return nil, fmt.Errorf("store: patients: %w", err)
 	}
-	vs, err := s.loadVisits(ctx, "1", markerNames)
+	if len(out) == 0 {
+		return nil, nil
+	}
+	vs, err := s.loadVisits(ctx, visitWhere, markerNames, args...)
 	if err != nil {
 		return nil, err
 	}

@@ -352,3 +352,96 @@ func TestMarkerStatesSurvive(t *testing.T) {
 		t.Errorf("last marker = %+v", last)
 	}
 }
+
+// GroupVisitRecords reads only the patients of the group, matched as
+// clinic.Patient.IsControl matches (case and surrounding spaces ignored),
+// with all their visits and markers.
+func TestGroupVisitRecords(t *testing.T) {
+	ctx := context.Background()
+	s := mustOpen(t)
+	for i, tt := range []struct{ code, group string }{
+		{"MC-0003", "control"}, {"MC-0001", " Control "}, {"MC-0002", "patient"}, {"MC-0004", ""}, {"MC-0005", "controls"},
+	} {
+		for j, d := range []string{"2021-05-02", "2022-05-30"} {
+			nv := sampleVisit(tt.code, d, []byte(tt.code+d), uint64(10*i+j))
+			nv.Patient.Group = tt.group
+			if _, err := s.SaveVisit(ctx, nv); err != nil {
+				t.Fatal(err)
+			}
+		}
+	}
+	got, err := s.GroupVisitRecords(ctx, "control")
+	if err != nil {
+		t.Fatal(err)
+	}
+	var codes []string
+	for _, pc := range got {
+		codes = append(codes, pc.Patient.Code)
+		if !pc.Patient.IsControl() {
+			t.Errorf("%s: group %q is not a control", pc.Patient.Code, pc.Patient.Group)
+		}
+		if len(pc.Visits) != 2 || pc.Visits[0].Visit.Date != "2021-05-02" {
+			t.Errorf("%s: %d visits", pc.Patient.Code, len(pc.Visits))
+		}
+		for _, v := range pc.Visits {
+			if v.Visit.PatientID != pc.Patient.ID || len(v.Markers) != len(sampleAnalysis(0).Result.Markers) {
+				t.Errorf("%s %s: patient %d, %d markers", pc.Patient.Code, v.Visit.Date, v.Visit.PatientID, len(v.Markers))
+			}
+		}
+	}
+	if want := []string{"MC-0001", "MC-0003"}; !reflect.DeepEqual(codes, want) {
+		t.Errorf("controls %v, want %v", codes, want)
+	}
+	if none, err := s.GroupVisitRecords(ctx, "volunteer"); err != nil || len(none) != 0 {
+		t.Errorf("no such group: %d patients, %v", len(none), err)
+	}
+}
+
+// The group stamp moves with every change GroupVisitRecords would show, and
+// only with those.
+func TestGroupStamp(t *testing.T) {
+	ctx := context.Background()
+	s := mustOpen(t)
+	stamp := func() string {
+		t.Helper()
+		st, err := s.GroupStamp(ctx, "control")
+		if err != nil {
+			t.Fatal(err)
+		}
+		return st
+	}
+	empty := stamp()
+	save := func(code, group, date string, seed uint64) int64 {
+		t.Helper()
+		nv := sampleVisit(code, date, []byte(code+date), seed)
+		nv.Patient.Group = group
+		v, err := s.SaveVisit(ctx, nv)
+		if err != nil {
+			t.Fatal(err)
+		}
+		return v.ID
+	}
+	id := save("MC-0001", "control", "2021-05-02", 1)
+	one := stamp()
+	if one == empty {
+		t.Error("a control's first visit left the stamp alone")
+	}
+	save("MC-0002", "patient", "2021-05-02", 2)
+	if stamp() != one {
+		t.Error("a patient's visit moved the controls' stamp")
+	}
+	save("MC-0001", "control", "2022-05-02", 3)
+	two := stamp()
+	if two == one {
+		t.Error("a control's second visit left the stamp alone")
+	}
+	// A new analysis of a control's visit (reprocess) with other values.
+	a := sampleAnalysis(7)
+	a.Result.Markers[0].Value += 0.5
+	if err := s.ReplaceAnalysis(ctx, id, a); err != nil {
+		t.Fatal(err)
+	}
+	if stamp() == two {
+		t.Error("a control's new analysis left the stamp alone")
+	}
+}

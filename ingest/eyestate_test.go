@@ -76,3 +76,17 @@ func TestPeriodsFromEvents(t *testing.T) {
 		}
 	}
 }
+
+func TestEyeStateWords(t *testing.T) {
+	for _, tt := range []struct {
+		s    EyeState
+		want string
+	}{
+		{EyesClosed, "eyes closed"}, {EyesOpen, "eyes open"}, {EyesUnknown, "eye state unknown"},
+		{"", ""}, {"drowsy", ""},
+	} {
+		if got := tt.s.Words(); got != tt.want {
+			t.Errorf("EyeState(%q).Words() = %q, want %q", tt.s, got, tt.want)
+		}
+	}
+}

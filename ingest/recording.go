@@ -97,6 +97,20 @@ const (
 	EyesUnknown EyeState = "unknown"
 )
 
+// Words names the eye state for people ("eyes closed", "eyes open", "eye
+// state unknown"); "" for no state or one of no known name.
+func (s EyeState) Words() string {
+	switch s {
+	case EyesClosed:
+		return "eyes closed"
+	case EyesOpen:
+		return "eyes open"
+	case EyesUnknown:
+		return "eye state unknown"
+	}
+	return ""
+}
+
 // Period is a stretch of one eye state, in seconds of recording time
 // (seconds after the first sample of the recording).
 type Period struct {

@@ -5,8 +5,9 @@
 //
 // Owners: 0001 is the store's (patients, visits, recordings, analysis);
 // 0002 the trends package's (reference ranges); 0003 the server's
-// (accounts, sessions, audit log). A file, once released, is never edited:
-// a change is a new file with the next number.
+// (accounts, sessions, audit log); 0004 the store's (marker intervals).
+// A file, once released, is never edited: a change is a new file with the
+// next number.
 package migrations
 
 import (

@@ -28,6 +28,11 @@ func courseChart(sr trends.Series) (web.Option, web.CourseChart) {
 			continue
 		}
 		tip := []string{pt.Date + agePart(pt), withUnit(sig(pt.Value), unit)}
+		if pt.Uncertainty != nil {
+			level := decimals(100*pt.Uncertainty.Level, 1) + " %"
+			tip = append(tip, level+" interval "+withUnit(sig(pt.Uncertainty.Low)+" to "+sig(pt.Uncertainty.High), unit),
+				"interval by "+methodText(pt.Uncertainty))
+		}
 		if pt.Comparable {
 			tip = append(tip, "comparable")
 		} else {

@@ -1,6 +1,7 @@
 package server
 
 import (
+	"math"
 	"strconv"
 	"strings"
 
@@ -62,6 +63,38 @@ func markerCell(m metrics.Marker) web.Cell {
 		return web.Cell{Text: "–", Note: "not computable: " + peopleText(m.Reason)}
 	}
 	return web.Cell{Text: sig(m.Value), Unit: displayUnit(m.Unit)}
+}
+
+// intervalText is a marker's own interval for people: "9.19 to 9.43 Hz",
+// with the level in front when it is not the 95 % the screens name
+// ("90 %: …"); "" when the marker has none.
+func intervalText(m metrics.Marker) string {
+	u := m.Uncertainty
+	if u == nil || !m.Computable {
+		return ""
+	}
+	text := withUnit(sig(u.Low)+" to "+sig(u.High), displayUnit(m.Unit))
+	if math.Abs(u.Level-0.95) > 1e-9 {
+		text = decimals(100*u.Level, 1) + " %: " + text
+	}
+	return text
+}
+
+// methodText says how an interval was made, in words: the method as the
+// analysis names it (a key such as "percentile_bootstrap" becomes words)
+// and the number of resamples of a bootstrap.
+func methodText(u *metrics.Uncertainty) string {
+	if u == nil {
+		return ""
+	}
+	text := strings.TrimSpace(u.Method)
+	if !strings.Contains(text, " ") {
+		text = strings.ReplaceAll(text, "_", " ")
+	}
+	if u.Resamples > 0 {
+		text += ", " + strconv.Itoa(u.Resamples) + " resamples"
+	}
+	return text
 }
 
 func displayUnit(u string) string {

@@ -63,12 +63,25 @@ func comparable(flags []metrics.Flag) bool {
 	return true
 }
 
-// verdictText says in words whether a visit can be compared.
+// verdictText says in words whether a visit can be compared: not at all
+// (a not-comparable flag on every marker), for some markers only (flags
+// naming their markers, such as an interval too wide for one marker), or
+// with cautions. The first such reason follows; the flags list has all.
 func verdictText(flags []metrics.Flag) string {
+	some := ""
 	for _, f := range flags {
-		if f.Severity == metrics.NotComparable {
+		if f.Severity != metrics.NotComparable {
+			continue
+		}
+		if len(f.Markers) == 0 {
 			return "Not comparable: " + peopleText(f.Reason)
 		}
+		if some == "" {
+			some = peopleText(f.Reason)
+		}
+	}
+	if some != "" {
+		return "Not comparable for some markers: " + some
 	}
 	for _, f := range flags {
 		if f.Severity == metrics.Caution {
@@ -120,7 +133,13 @@ func (s *Server) visitPage(w http.ResponseWriter, r *http.Request) {
 		ChartData: map[string]web.Option{},
 	}
 	for _, m := range v.Markers {
-		page.Markers = append(page.Markers, web.MarkerRow{Name: markerTitle(m.Name), Region: regionName(m.Region), State: stateName(m.State), Value: markerCell(m)})
+		page.Markers = append(page.Markers, web.MarkerRow{Name: markerTitle(m.Name), Region: regionName(m.Region), State: stateName(m.State), Value: markerCell(m),
+			Interval: intervalText(m), Method: methodText(m.Uncertainty)})
+		page.HasIntervals = page.HasIntervals || m.Uncertainty != nil
+	}
+	if !page.HasIntervals && len(v.Markers) > 0 {
+		page.NoIntervals = "These markers carry no interval of their own: they were made by settings version " +
+			v.SettingsVersion + ", which makes none."
 	}
 	if len(v.Recordings) > 0 {
 		page.Traces = traceViewer(v)

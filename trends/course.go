@@ -115,6 +115,9 @@ type SeriesPoint struct {
 	AgeKnown bool    `json:"age_known"`
 	Value    float64 `json:"value"`
 	Unit     string  `json:"unit"`
+	// Uncertainty is the value's own interval from the visit's data (settings
+	// v2 onward; absent for v1 visits and values not computable).
+	Uncertainty *metrics.Uncertainty `json:"uncertainty,omitempty"`
 	// Computable is the marker's own verdict; Comparable is true when it is
 	// computable and no not_comparable flag concerns this marker.
 	Computable bool `json:"computable"`
@@ -244,7 +247,7 @@ func pointOf(a *assessed, name, region, state string) (SeriesPoint, metrics.Mark
 		p.Reasons = append(p.Reasons, "not among this visit's markers")
 		return p, m
 	}
-	p.Value, p.Unit, p.Computable = m.Value, m.Unit, m.Computable
+	p.Value, p.Unit, p.Computable, p.Uncertainty = m.Value, m.Unit, m.Computable, m.Uncertainty
 	if !m.Computable {
 		r := m.Reason
 		if r == "" {

@@ -15,13 +15,17 @@
 //	CheckSettings(v clinic.VisitRecord, version, hash string) []metrics.Flag // other processing settings
 //	CompareVisits(prev, cur clinic.VisitRecord) []metrics.Flag              // cautions between two visits
 //	Rules() []Rule                                                         // the rule catalogue for people
+//	IntervalLimits() []IntervalLimit                                       // widest interval compared, per marker
 //	FlagAffects(f metrics.Flag, m metrics.Marker) bool
 //
 // A flag's Markers are marker names, "name/region" or "name/region/state";
 // empty means every marker. A point is comparable for a marker when the
 // marker is computable and no not_comparable flag concerns it; cautions are
 // shown but never exclude a point. All thresholds and their sources are in
-// thresholds.go.
+// thresholds.go. "Too little data" is judged by each marker's own interval
+// where markers carry one (settings v2: interval_too_wide, per marker; short
+// clean data a caution), and by the clean eyes-closed seconds where they do
+// not (settings v1: little_clean_closed, every marker).
 //
 // # Reference ranges (ranges.go, rangefile.go)
 //
@@ -58,7 +62,7 @@
 //	       "comparable_with_cautions", "partly_comparable", "not_comparable"); Comparable bool;
 //	       Flags []metrics.Flag; SettingsVersion; SettingsHash; Conditions ingest.Conditions; Quality QualitySummary}
 //	Series{Key, Marker, Region, State, Unit string; Points []SeriesPoint; Change Change}
-//	SeriesPoint{VisitID; Date; AgeYears; AgeKnown; Value; Unit; Computable; Comparable;
+//	SeriesPoint{VisitID; Date; AgeYears; AgeKnown; Value; Unit; Uncertainty *metrics.Uncertainty; Computable; Comparable;
 //	       Reasons, Cautions []string; Literature RangeLookup; Local LocalCheck}
 //	Change{Points; Baseline…/Latest… (VisitID, Date, Value); HasFromBaseline; FromBaseline; Years;
 //	       Slope Slope; Reliable ReliableChange; Expected ExpectedForAge; Verdict SlopeVerdict;

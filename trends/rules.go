@@ -25,6 +25,7 @@ const (
 	RuleOccipitalMissing    = "occipital_missing"
 	RuleFewGoodPositions    = "few_good_positions"
 	RuleLittleCleanClosed   = "little_clean_closed"
+	RuleIntervalWide        = "interval_too_wide"
 	RuleNoEyesOpen          = "no_eyes_open"
 	RuleEyeStateUnknown     = "eye_state_unknown"
 	RuleDrowsy              = "drowsy"
@@ -61,7 +62,8 @@ func Rules() []Rule {
 		{RuleCoarseResolution, metrics.Caution, "visit", "all", "amplitude resolution > " + num(MaxUVPerStep) + " µV per step", sourceIFCNRes},
 		{RuleOccipitalMissing, metrics.NotComparable, "visit", "PDR, left/right PDR, asymmetry and posterior-region markers", "O1 or O2 missing or bad", sourceDesign},
 		{RuleFewGoodPositions, metrics.NotComparable, "visit", "all", "fewer than " + strconv.Itoa(MinGoodPositions) + " of the 19 positions good", sourceReference},
-		{RuleLittleCleanClosed, metrics.NotComparable, "visit", "all", "clean eyes-closed data < " + num(MinCleanClosedSeconds) + " s", sourceDesign},
+		{RuleLittleCleanClosed, metrics.NotComparable, "visit", "all (markers without an interval of their own, settings v1); a caution only where markers carry intervals", "clean eyes-closed data < " + num(MinCleanClosedSeconds) + " s", sourceDesign},
+		{RuleIntervalWide, metrics.NotComparable, "visit", "each marker on its own interval (settings v2 onward)", intervalLimitsText(), sourceInterval},
 		{RuleNoEyesOpen, metrics.NotComparable, "visit", metrics.AlphaReactivity + ", " + metrics.AlphaRatio, "no clean eyes-open data", sourceDesign},
 		{RuleEyeStateUnknown, metrics.NotComparable, "visit", "all", "eye state not known", sourceDesign},
 		{RuleDrowsy, metrics.NotComparable, "visit", "all but " + metrics.DrowsinessIndex, "drowsiness index > " + num(MaxDrowsiness), sourceDrowsy},
@@ -114,7 +116,7 @@ func CheckVisit(v VisitQuality) []metrics.Flag {
 	out = append(out, checkFilters(v.Conditions.Filters)...)
 	out = append(out, checkResolution(v.Conditions)...)
 	out = append(out, checkPositions(v.Conditions, v.Quality)...)
-	out = append(out, checkEyeStates(v.Conditions, v.Quality)...)
+	out = append(out, checkEyeStates(v.Conditions, v.Quality, v.Markers)...)
 	return out
 }
 
@@ -269,7 +271,7 @@ func checkPositions(c ingest.Conditions, q metrics.Quality) []metrics.Flag {
 	return out
 }
 
-func checkEyeStates(c ingest.Conditions, q metrics.Quality) []metrics.Flag {
+func checkEyeStates(c ingest.Conditions, q metrics.Quality, markers []metrics.Marker) []metrics.Flag {
 	var out []metrics.Flag
 	closed := q.CleanSeconds[ingest.EyesClosed]
 	open := q.CleanSeconds[ingest.EyesOpen]
@@ -279,11 +281,7 @@ func checkEyeStates(c ingest.Conditions, q metrics.Quality) []metrics.Flag {
 			Reason: "eye state unknown: no annotation, run or declaration says when the eyes were closed or open",
 			Source: sourceDesign})
 	}
-	if closed < MinCleanClosedSeconds {
-		out = append(out, metrics.Flag{Rule: RuleLittleCleanClosed, Severity: metrics.NotComparable,
-			Reason: fmt.Sprintf("%s s of clean eyes-closed data: under %s s", num(closed), num(MinCleanClosedSeconds)),
-			Source: sourceDesign})
-	}
+	out = append(out, checkEnoughData(closed, markers)...)
 	if open <= 0 {
 		reason := "no eyes-open period: alpha reactivity needs one"
 		if q.EpochsTotal[ingest.EyesOpen] > 0 {
@@ -303,6 +301,132 @@ func checkEyeStates(c ingest.Conditions, q metrics.Quality) []metrics.Flag {
 	}
 	return out
 }
+
+// checkEnoughData judges whether a visit has data enough to compare its
+// markers. Where no marker carries an interval of its own (settings v1),
+// under MinCleanClosedSeconds of clean eyes-closed data makes every marker
+// not comparable, as before. Where markers carry intervals, each computable
+// marker is judged by its own: an interval wider than its IntervalLimit is
+// not comparable for that marker alone (one flag per marker, the figures in
+// the reason), and short clean data is a caution for all. A computable
+// marker without an interval among markers that have them keeps the
+// clean-seconds rule.
+func checkEnoughData(closed float64, markers []metrics.Marker) []metrics.Flag {
+	short := closed < MinCleanClosedSeconds
+	shortText := fmt.Sprintf("%s s of clean eyes-closed data: under %s s", num(closed), num(MinCleanClosedSeconds))
+	if !hasIntervals(markers) {
+		if !short {
+			return nil
+		}
+		return []metrics.Flag{{Rule: RuleLittleCleanClosed, Severity: metrics.NotComparable,
+			Reason: shortText, Source: sourceDesign}}
+	}
+	var out []metrics.Flag
+	if short {
+		out = append(out, metrics.Flag{Rule: RuleLittleCleanClosed, Severity: metrics.Caution,
+			Reason: shortText + "; each marker is judged by its own interval", Source: sourceDesign})
+	}
+	var bare []string
+	for _, m := range markers {
+		if !m.Computable {
+			continue
+		}
+		lim, ok := intervalLimit(m.Name)
+		if m.Uncertainty == nil || !ok {
+			if short {
+				bare = append(bare, m.Key())
+			}
+			continue
+		}
+		if reason, wide := tooWide(m, lim); wide {
+			out = append(out, metrics.Flag{Rule: RuleIntervalWide, Severity: metrics.NotComparable,
+				Markers: []string{m.Key()}, Reason: reason, Source: sourceInterval})
+		}
+	}
+	if len(bare) > 0 {
+		out = append(out, metrics.Flag{Rule: RuleLittleCleanClosed, Severity: metrics.NotComparable, Markers: bare,
+			Reason: shortText + ", and these markers carry no interval of their own", Source: sourceDesign})
+	}
+	return out
+}
+
+// hasIntervals reports whether any computable marker carries an interval.
+func hasIntervals(markers []metrics.Marker) bool {
+	for _, m := range markers {
+		if m.Computable && m.Uncertainty != nil {
+			return true
+		}
+	}
+	return false
+}
+
+func intervalLimit(name string) (IntervalLimit, bool) {
+	for _, l := range IntervalLimits() {
+		if l.Marker == name {
+			return l, true
+		}
+	}
+	return IntervalLimit{}, false
+}
+
+// tooWide compares a marker's interval width high − low with its limit
+// (relative limits against the width over |value|) and says so in words.
+func tooWide(m metrics.Marker, lim IntervalLimit) (string, bool) {
+	u := m.Uncertainty
+	width := u.High - u.Low
+	level := num(100*u.Level) + " %"
+	where := lim.Words + " (" + regionWords(m.Region) + stateWords(m.State) + ")"
+	if lim.Relative {
+		if width <= lim.Width*math.Abs(m.Value) {
+			return "", false
+		}
+		share := "the value is 0"
+		if m.Value != 0 {
+			share = num(100*width/math.Abs(m.Value)) + " % of the value " + sig3(m.Value)
+		}
+		return fmt.Sprintf("%s: %s interval %s to %s is %s wide, %s; wider than %s %% of the value, too wide to compare across visits",
+			where, level, sig3(u.Low), sig3(u.High), sig3(width), share, num(100*lim.Width)), true
+	}
+	if width <= lim.Width {
+		return "", false
+	}
+	unit := ""
+	if m.Unit != "" && m.Unit != "1" && m.Unit != "ratio" && m.Unit != "share" {
+		unit = " " + m.Unit
+	}
+	return fmt.Sprintf("%s: %s interval %s to %s%s is %s%s wide, wider than %s%s: too wide to compare across visits",
+		where, level, sig3(u.Low), sig3(u.High), unit, sig3(width), unit, num(lim.Width), unit), true
+}
+
+// intervalLimitsText is the rule's threshold for the rules list.
+func intervalLimitsText() string {
+	var parts []string
+	for _, l := range IntervalLimits() {
+		if l.Relative {
+			parts = append(parts, l.Words+" "+num(100*l.Width)+" % of the value")
+		} else {
+			parts = append(parts, l.Words+" "+num(l.Width))
+		}
+	}
+	return "interval (high − low) wider than: " + strings.Join(parts, "; ")
+}
+
+func regionWords(r string) string {
+	if r == "" {
+		return "no region"
+	}
+	return strings.ReplaceAll(r, "_", " ") + " region"
+}
+
+func stateWords(s ingest.EyeState) string {
+	if w := s.Words(); w != "" {
+		return ", " + w
+	}
+	return ""
+}
+
+// sig3 formats a value with three significant digits.
+func sig3(v float64) string { return strconv.FormatFloat(v, 'g', 3, 64) }
 
 // CheckSettings flags a visit whose markers were made by processing settings
 // other than the current version and hash: its numbers are not comparable

@@ -1,5 +1,7 @@
 package trends
 
+import "longwave/metrics"
+
 // Every number the comparability rules use sits here, beside its source.
 // Sources are named as REFERENCES.md names them, with their status there
 // ("secondary", "memory", "abstract"); "common practice" marks a fact of the
@@ -66,6 +68,122 @@ const MinGoodPositions = 15
 // eyes-closed markers: 15 clean 4 s epochs. Source: longwave design.
 const MinCleanClosedSeconds = 60.0
 
+// MinCleanClosedSeconds above decides comparability only for visits whose
+// markers carry no interval of their own (settings v1). From settings v2 on
+// every marker has a 95 % interval from the visit's own data, and "too
+// little data" is judged per marker by the width of that interval against
+// the limits below; short clean data stays a caution. The limits are widths
+// of the whole interval (high − low) in the marker's unit, or relative to
+// the marker's value for ratios and shares of power, whose changes are
+// proportional. Each is chosen against what the marker must resolve between
+// two visits; all are longwave design and provisional until the clinic's
+// own controls give a visit-to-visit SD per marker.
+
+// MaxIntervalWidthPDR is the widest interval, in Hz, of the posterior
+// dominant rhythm (and of the alpha centre of gravity and the left and right
+// occipital peaks, same unit and same question). Source: longwave design.
+// Reason: half the provisional smallest reliable change of the PDR, 0.632 Hz
+// (1.96 · √2 · SD · √(1 − r) with SD 0.57 Hz and r 0.84, REFERENCES.md
+// section 2; Jacobson & Truax 1991), rounded down. Two visits at the limit
+// have SE ≤ 0.3 / (2 · 1.96) = 0.077 Hz each, so their difference has a 95 %
+// half-width of at most 1.96 · √2 · 0.077 = 0.21 Hz, a third of the reliable
+// change: the visits' own noise cannot by itself make or hide one. The
+// limit is also about one Welch bin (0.25 Hz at 4 s segments), the spacing
+// the peak interpolation refines.
+const MaxIntervalWidthPDR = 0.3
+
+// MaxIntervalWidthAsymmetry is the widest interval, in Hz, of the left minus
+// right occipital peak difference. Source: longwave design, on the steps of
+// the ACNS terminology (0.5–1 Hz mild, above 1 Hz marked asymmetry; Hirsch et
+// al. 2013, secondary): an interval wider than one step cannot place the
+// difference in one category.
+const MaxIntervalWidthAsymmetry = 0.5
+
+// MaxIntervalWidthReactivity is the widest interval of alpha reactivity
+// (the attenuation 1 − EO/EC) and of the eyes-open over eyes-closed ratio,
+// both shares on a scale of 0 to 1. Source: longwave design. Reason: no
+// normal limit or reliability is published (REFERENCES.md section 1: course
+// only); reactivity is high in normal elderly, intermediate in amnestic MCI
+// and low in mild AD (Babiloni et al. 2010, abstract, no figures), three
+// levels on one scale, so an interval over a fifth of the whole scale cannot
+// tell neighbouring levels apart.
+const MaxIntervalWidthReactivity = 0.2
+
+// MaxIntervalWidthExponent is the widest interval of the aperiodic exponent.
+// Source: longwave design. Reason: ±0.05 is the agreement settings v2 holds
+// the exponent to between a blink-laden and a blink-free recording of the
+// same signal, the least change longwave treats as material for this
+// marker; an interval wider than 0.1 (±0.05 about the value) would hide
+// such a change inside one visit's noise. No reliability in the
+// marker's unit is published (REFERENCES.md section 2 gives an ICC only).
+const MaxIntervalWidthExponent = 0.1
+
+// MaxIntervalWidthOffset is the widest interval of the aperiodic offset, in
+// log10 µV²/Hz. Source: longwave design. Reason: ±0.1 in log10 is ±26 % of
+// broad-band power, about the difference between two amplifiers or caps
+// that the comparability cautions already name; a visit's own noise should
+// stay inside it.
+const MaxIntervalWidthOffset = 0.2
+
+// MaxIntervalWidthFitR2 is the widest interval of the aperiodic fit's R²
+// (0–1). Source: longwave design: ±0.05 tells a good fit (above 0.95) from a
+// doubtful one.
+const MaxIntervalWidthFitR2 = 0.1
+
+// MaxIntervalRelativeWidth is the widest interval of a ratio of band powers
+// (theta/alpha, slowing ratio, frontal/posterior alpha) or a relative band
+// power, as a share of the marker's value: 0.2, about ±10 %. Source: longwave
+// design. Reason: 10 % is the agreement settings v2 holds theta/alpha to
+// between a blink-laden and a blink-free recording of the same signal, the
+// least change longwave treats as material for a ratio; ratios of power
+// change in proportion, so the limit is relative.
+const MaxIntervalRelativeWidth = 0.2
+
+// MaxIntervalWidthDrowsiness is the widest interval of the drowsiness index
+// (a share of epochs): the whole span 0 to MaxDrowsiness that the drowsy
+// rule allows. Source: longwave design: a wider interval cannot say on which
+// side of the limit the visit lies.
+const MaxIntervalWidthDrowsiness = MaxDrowsiness
+
+// IntervalLimit is the widest interval at which one marker is compared:
+// Width in the marker's unit, or, when Relative, as a share of the
+// marker's absolute value. Words name the marker for people.
+type IntervalLimit struct {
+	Marker   string  `json:"marker"`
+	Words    string  `json:"words"`
+	Width    float64 `json:"width"`
+	Relative bool    `json:"relative"`
+}
+
+// IntervalLimits lists the limit of every marker name of package metrics,
+// in the order of MarkerNames.
+func IntervalLimits() []IntervalLimit {
+	abs := func(name, words string, w float64) IntervalLimit { return IntervalLimit{name, words, w, false} }
+	rel := func(name, words string) IntervalLimit {
+		return IntervalLimit{name, words, MaxIntervalRelativeWidth, true}
+	}
+	return []IntervalLimit{
+		abs(metrics.PDRFrequency, "posterior dominant rhythm", MaxIntervalWidthPDR),
+		abs(metrics.PDRCentroid, "alpha centre of gravity", MaxIntervalWidthPDR),
+		abs(metrics.PDRLeft, "left occipital peak", MaxIntervalWidthPDR),
+		abs(metrics.PDRRight, "right occipital peak", MaxIntervalWidthPDR),
+		abs(metrics.PDRAsymmetry, "left minus right occipital peak", MaxIntervalWidthAsymmetry),
+		abs(metrics.AlphaReactivity, "alpha reactivity", MaxIntervalWidthReactivity),
+		abs(metrics.AlphaRatio, "alpha eyes open over eyes closed", MaxIntervalWidthReactivity),
+		rel(metrics.ThetaAlphaRatio, "theta/alpha ratio"),
+		abs(metrics.AperiodicExponent, "aperiodic exponent", MaxIntervalWidthExponent),
+		abs(metrics.AperiodicOffset, "aperiodic offset", MaxIntervalWidthOffset),
+		abs(metrics.AperiodicR2, "aperiodic fit R²", MaxIntervalWidthFitR2),
+		rel(metrics.RelDelta, "relative delta power"),
+		rel(metrics.RelTheta, "relative theta power"),
+		rel(metrics.RelAlpha, "relative alpha power"),
+		rel(metrics.RelBeta, "relative beta power"),
+		rel(metrics.SlowingRatio, "slowing ratio"),
+		rel(metrics.FrontalPosteriorAlpha, "frontal over posterior alpha"),
+		abs(metrics.DrowsinessIndex, "drowsiness index", MaxIntervalWidthDrowsiness),
+	}
+}
+
 // MaxDrowsiness is the highest drowsiness index (share of clean eyes-closed
 // epochs with posterior alpha dropout) at which markers are compared. Source:
 // longwave design. Reason: in drowsiness alpha slows by 0.5–1.5 Hz (clinical
@@ -100,6 +218,7 @@ const (
 	sourceACNS1      = "Sinha SR et al. (2016). ACNS Guideline 1: Minimum Technical Requirements for Performing Clinical EEG. J Clin Neurophysiol 33(4):303–307 (from memory): low-frequency filter no higher than 1 Hz, high-frequency filter no lower than 70 Hz"
 	sourceFilterEdge = "longwave design: markers are computed over fixed bands up to 45 Hz; common practice: a first-order filter already attenuates one octave inside its pass band"
 	sourceDesign     = "longwave design"
+	sourceInterval   = "longwave design: the widest 95 % interval of the visit's own data at which the marker is compared, chosen against the change it must resolve between visits (trends/thresholds.go)"
 	sourceDrowsy     = "longwave design (limit 0.25); clinical sleep handbook definition (secondary): alpha slows by 0.5–1.5 Hz and spreads forward in drowsiness"
 	sourceReference  = "longwave design: common average of the good channels of the 19 positions; ACNS Guideline 1 (2016): at least 16 channels recorded at once"
 )

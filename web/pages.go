@@ -218,10 +218,14 @@ type VisitPage struct {
 	Conditions []Pair
 	Flags      []FlagView
 	Markers    []MarkerRow
-	Spectra    []ChartBox
-	Traces     *TraceViewer
-	NoDisplay  string
-	ChartData  map[string]Option
+	// HasIntervals is true when any marker carries its own interval
+	// (settings v2 onward); NoIntervals says why none do.
+	HasIntervals bool
+	NoIntervals  string
+	Spectra      []ChartBox
+	Traces       *TraceViewer
+	NoDisplay    string
+	ChartData    map[string]Option
 }
 
 func (*VisitPage) template() string { return "visit.html" }
@@ -256,6 +260,10 @@ type MarkerRow struct {
 	Region string
 	State  string
 	Value  Cell
+	// Interval is the value's interval in words ("9.19 to 9.43 Hz", "" when
+	// it has none) and Method how it was made, in words.
+	Interval string
+	Method   string
 }
 
 // UploadPage is the form to add a recording to a patient's visit, and its

@@ -24,35 +24,38 @@ const safeHarborAgeCap = 90
 
 // exportRow is one visit and marker, the unit a statistician works on.
 type exportRow struct {
-	Patient         string   `json:"patient"`
-	Sex             string   `json:"sex"`
-	Group           string   `json:"group"`
-	Cohort          string   `json:"cohort"`
-	VisitDate       string   `json:"visit_date,omitempty"`
-	DaysSinceFirst  *int     `json:"days_since_first_visit,omitempty"`
-	AgeYears        *float64 `json:"age_years"`
-	Marker          string   `json:"marker"`
-	Region          string   `json:"region"`
-	State           string   `json:"state"`
-	Value           *float64 `json:"value"`
-	Unit            string   `json:"unit"`
-	Computable      bool     `json:"computable"`
-	Reason          string   `json:"reason"`
-	SettingsVersion string   `json:"settings_version"`
-	SettingsHash    string   `json:"settings_hash"`
-	SampleRate      float64  `json:"sample_rate_hz"`
-	UVPerStep       float64  `json:"uv_per_step"`
-	HighPass        string   `json:"high_pass_hz"`
-	LowPass         string   `json:"low_pass_hz"`
-	LineFrequency   float64  `json:"line_frequency_hz"`
-	Reference       string   `json:"reference"`
-	Equipment       string   `json:"equipment,omitempty"`
-	PeriodSource    string   `json:"period_source"`
-	CleanClosed     float64  `json:"clean_closed_s"`
-	CleanOpen       float64  `json:"clean_open_s"`
-	RejectedShare   float64  `json:"rejected_share"`
-	Flags           string   `json:"flags"`
-	Comparable      string   `json:"comparable"`
+	Patient        string   `json:"patient"`
+	Sex            string   `json:"sex"`
+	Group          string   `json:"group"`
+	Cohort         string   `json:"cohort"`
+	VisitDate      string   `json:"visit_date,omitempty"`
+	DaysSinceFirst *int     `json:"days_since_first_visit,omitempty"`
+	AgeYears       *float64 `json:"age_years"`
+	Marker         string   `json:"marker"`
+	Region         string   `json:"region"`
+	State          string   `json:"state"`
+	Value          *float64 `json:"value"`
+	Unit           string   `json:"unit"`
+	// Uncertainty is the value's own interval (settings v2 onward; absent
+	// for v1 visits and values not computable).
+	Uncertainty     *metrics.Uncertainty `json:"uncertainty,omitempty"`
+	Computable      bool                 `json:"computable"`
+	Reason          string               `json:"reason"`
+	SettingsVersion string               `json:"settings_version"`
+	SettingsHash    string               `json:"settings_hash"`
+	SampleRate      float64              `json:"sample_rate_hz"`
+	UVPerStep       float64              `json:"uv_per_step"`
+	HighPass        string               `json:"high_pass_hz"`
+	LowPass         string               `json:"low_pass_hz"`
+	LineFrequency   float64              `json:"line_frequency_hz"`
+	Reference       string               `json:"reference"`
+	Equipment       string               `json:"equipment,omitempty"`
+	PeriodSource    string               `json:"period_source"`
+	CleanClosed     float64              `json:"clean_closed_s"`
+	CleanOpen       float64              `json:"clean_open_s"`
+	RejectedShare   float64              `json:"rejected_share"`
+	Flags           string               `json:"flags"`
+	Comparable      string               `json:"comparable"`
 }
 
 func init() {
@@ -61,7 +64,10 @@ func init() {
 		summary: "Write one row per visit and marker, with conditions and flags, as CSV or JSON for R or pandas.\n" +
 			"--deidentify replaces dates by days since the patient's first visit, caps ages at 90 and leaves out the equipment text.",
 		more: `Columns: patient, sex, group, cohort, visit_date (or days_since_first_visit),
-age_years, marker, region, state, value, unit, computable, reason,
+age_years, marker, region, state, value, unit, interval_se, interval_low,
+interval_high, interval_level, interval_method, interval_resamples (the
+value's own interval from settings v2 on, empty where a visit has none),
+computable, reason,
 settings_version, settings_hash, sample_rate_hz, uv_per_step, high_pass_hz,
 low_pass_hz, line_frequency_hz, reference, equipment, period_source,
 clean_closed_s, clean_open_s, rejected_share, flags (rule:severity joined by
@@ -93,7 +99,7 @@ is kept.
 				if err != nil {
 					return err
 				}
-				settings := metrics.V1()
+				settings := metrics.Current()
 				rows, err := exportRows(courses, settings.Version, settings.Hash(), *deid)
 				if err != nil {
 					return err
@@ -175,6 +181,7 @@ func exportRows(courses []store.PatientCourse, version, hash string, deid bool) 
 				if m.Computable {
 					val := m.Value
 					r.Value = &val
+					r.Uncertainty = m.Uncertainty
 				}
 				var names []string
 				comparable := m.Computable
@@ -215,36 +222,94 @@ func edge(f ingest.Frequency) string {
 
 func num(v float64) string { return strconv.FormatFloat(v, 'g', -1, 64) }
 
+// csvColumns are the CSV export's columns in order; deidentified ones are
+// left out of a --deidentify export, and when is the visit date or, in a
+// --deidentify export, the days since the first visit.
+var csvColumns = []struct {
+	name, deidName string
+	identifying    bool
+	text           func(r exportRow, deid bool) string
+}{
+	{"patient", "", false, func(r exportRow, _ bool) string { return r.Patient }},
+	{"sex", "", false, func(r exportRow, _ bool) string { return r.Sex }},
+	{"group", "", false, func(r exportRow, _ bool) string { return r.Group }},
+	{"cohort", "", false, func(r exportRow, _ bool) string { return r.Cohort }},
+	{"visit_date", "days_since_first_visit", false, func(r exportRow, deid bool) string {
+		if deid {
+			return strconv.Itoa(*r.DaysSinceFirst)
+		}
+		return r.VisitDate
+	}},
+	{"age_years", "", false, func(r exportRow, _ bool) string { return optNum(r.AgeYears) }},
+	{"marker", "", false, func(r exportRow, _ bool) string { return r.Marker }},
+	{"region", "", false, func(r exportRow, _ bool) string { return r.Region }},
+	{"state", "", false, func(r exportRow, _ bool) string { return r.State }},
+	{"value", "", false, func(r exportRow, _ bool) string { return optNum(r.Value) }},
+	{"unit", "", false, func(r exportRow, _ bool) string { return r.Unit }},
+	{"interval_se", "", false, interval(func(u *metrics.Uncertainty) string { return num(u.SE) })},
+	{"interval_low", "", false, interval(func(u *metrics.Uncertainty) string { return num(u.Low) })},
+	{"interval_high", "", false, interval(func(u *metrics.Uncertainty) string { return num(u.High) })},
+	{"interval_level", "", false, interval(func(u *metrics.Uncertainty) string { return num(u.Level) })},
+	{"interval_method", "", false, interval(func(u *metrics.Uncertainty) string { return u.Method })},
+	{"interval_resamples", "", false, interval(func(u *metrics.Uncertainty) string { return strconv.Itoa(u.Resamples) })},
+	{"computable", "", false, func(r exportRow, _ bool) string { return strconv.FormatBool(r.Computable) }},
+	{"reason", "", false, func(r exportRow, _ bool) string { return r.Reason }},
+	{"settings_version", "", false, func(r exportRow, _ bool) string { return r.SettingsVersion }},
+	{"settings_hash", "", false, func(r exportRow, _ bool) string { return r.SettingsHash }},
+	{"sample_rate_hz", "", false, func(r exportRow, _ bool) string { return num(r.SampleRate) }},
+	{"uv_per_step", "", false, func(r exportRow, _ bool) string { return num(r.UVPerStep) }},
+	{"high_pass_hz", "", false, func(r exportRow, _ bool) string { return r.HighPass }},
+	{"low_pass_hz", "", false, func(r exportRow, _ bool) string { return r.LowPass }},
+	{"line_frequency_hz", "", false, func(r exportRow, _ bool) string { return num(r.LineFrequency) }},
+	{"reference", "", false, func(r exportRow, _ bool) string { return r.Reference }},
+	{"equipment", "", true, func(r exportRow, _ bool) string { return r.Equipment }},
+	{"period_source", "", false, func(r exportRow, _ bool) string { return r.PeriodSource }},
+	{"clean_closed_s", "", false, func(r exportRow, _ bool) string { return num(r.CleanClosed) }},
+	{"clean_open_s", "", false, func(r exportRow, _ bool) string { return num(r.CleanOpen) }},
+	{"rejected_share", "", false, func(r exportRow, _ bool) string { return num(r.RejectedShare) }},
+	{"flags", "", false, func(r exportRow, _ bool) string { return r.Flags }},
+	{"comparable", "", false, func(r exportRow, _ bool) string { return r.Comparable }},
+}
+
+// interval is a column of the value's interval, empty where it has none.
+func interval(f func(*metrics.Uncertainty) string) func(exportRow, bool) string {
+	return func(r exportRow, _ bool) string {
+		if r.Uncertainty == nil {
+			return ""
+		}
+		return f(r.Uncertainty)
+	}
+}
+
+func optNum(p *float64) string {
+	if p == nil {
+		return ""
+	}
+	return num(*p)
+}
+
 func writeCSV(w io.Writer, rows []exportRow, deid bool) error {
 	cw := csv.NewWriter(w)
-	head := []string{"patient", "sex", "group", "cohort", "visit_date", "age_years", "marker", "region", "state",
-		"value", "unit", "computable", "reason", "settings_version", "settings_hash", "sample_rate_hz", "uv_per_step",
-		"high_pass_hz", "low_pass_hz", "line_frequency_hz", "reference", "equipment", "period_source",
-		"clean_closed_s", "clean_open_s", "rejected_share", "flags", "comparable"}
-	if deid {
-		head[4] = "days_since_first_visit"
-		head = append(head[:21], head[22:]...) // no equipment
+	var head []string
+	for _, c := range csvColumns {
+		switch {
+		case deid && c.identifying:
+		case deid && c.deidName != "":
+			head = append(head, c.deidName)
+		default:
+			head = append(head, c.name)
+		}
 	}
 	if err := cw.Write(head); err != nil {
 		return err
 	}
-	opt := func(p *float64) string {
-		if p == nil {
-			return ""
-		}
-		return num(*p)
-	}
+	rec := make([]string, 0, len(head))
 	for _, r := range rows {
-		when := r.VisitDate
-		if deid {
-			when = strconv.Itoa(*r.DaysSinceFirst)
-		}
-		rec := []string{r.Patient, r.Sex, r.Group, r.Cohort, when, opt(r.AgeYears), r.Marker, r.Region, r.State,
-			opt(r.Value), r.Unit, strconv.FormatBool(r.Computable), r.Reason, r.SettingsVersion, r.SettingsHash,
-			num(r.SampleRate), num(r.UVPerStep), r.HighPass, r.LowPass, num(r.LineFrequency), r.Reference, r.Equipment,
-			r.PeriodSource, num(r.CleanClosed), num(r.CleanOpen), num(r.RejectedShare), r.Flags, r.Comparable}
-		if deid {
-			rec = append(rec[:21], rec[22:]...)
+		rec = rec[:0]
+		for _, c := range csvColumns {
+			if !(deid && c.identifying) {
+				rec = append(rec, c.text(r, deid))
+			}
 		}
 		if err := cw.Write(rec); err != nil {
 			return err

@@ -40,8 +40,11 @@ func markersMore() string {
 annotations, or an eyes-closed and an eyes-open run of the same visit, and
 prints one JSON object: settings {version, hash}; conditions (the recording
 conditions, with "quality": what analysis found); markers [{name, region,
-state, value, unit, computable, reason}]; flags [{rule, severity, markers,
-reason, source}] from the recording's own quality. A recording without eye
+state, value, unit, computable, reason, uncertainty}]; flags [{rule,
+severity, markers, reason, source}] from the recording's own quality.
+uncertainty is the value's own interval {se, low, high, level, method,
+resamples} from settings version 2 on, absent before and where the value is
+not computable. A recording without eye
 state is analysed as one period of state "unknown" and flagged. Nothing is
 stored. A marker that cannot be had has computable false and a reason.
 

@@ -12,13 +12,16 @@ import (
 	"longwave/trends"
 )
 
-// MarkerChange is a marker whose value or computability moved when a visit
-// was processed again.
+// MarkerChange is a marker whose value, computability or interval moved
+// when a visit was processed again. An interval is nil where the analysis
+// made none (settings v1, or not computable).
 type MarkerChange struct {
 	Key                          string // name/region/state
+	Unit                         string
 	Old, New                     float64
 	OldComputable, NewComputable bool
 	OldReason, NewReason         string
+	OldInterval, NewInterval     *metrics.Uncertainty
 }
 
 // VisitChange is one reprocessed visit.
@@ -204,9 +207,10 @@ func diffMarkers(old, cur []metrics.Marker) (changes []MarkerChange, added, remo
 			added = append(added, k)
 			continue
 		}
-		if o.Computable != m.Computable || math.Abs(o.Value-m.Value) > sameValue*math.Max(1, math.Abs(o.Value)) {
-			changes = append(changes, MarkerChange{Key: k, Old: o.Value, New: m.Value, OldComputable: o.Computable,
-				NewComputable: m.Computable, OldReason: o.Reason, NewReason: m.Reason})
+		if o.Computable != m.Computable || !sameFloat(o.Value, m.Value) || !sameInterval(o.Uncertainty, m.Uncertainty) {
+			changes = append(changes, MarkerChange{Key: k, Unit: m.Unit, Old: o.Value, New: m.Value, OldComputable: o.Computable,
+				NewComputable: m.Computable, OldReason: o.Reason, NewReason: m.Reason,
+				OldInterval: o.Uncertainty, NewInterval: m.Uncertainty})
 		}
 	}
 	for _, m := range old {
@@ -215,4 +219,108 @@ func diffMarkers(old, cur []metrics.Marker) (changes []MarkerChange, added, remo
 		}
 	}
 	return changes, added, removed
+}
+
+func sameFloat(a, b float64) bool { return math.Abs(a-b) <= sameValue*math.Max(1, math.Abs(a)) }
+
+// sameInterval reports whether two intervals are both absent, or equal
+// within sameValue.
+func sameInterval(a, b *metrics.Uncertainty) bool {
+	if a == nil || b == nil {
+		return a == nil && b == nil
+	}
+	return sameFloat(a.SE, b.SE) && sameFloat(a.Low, b.Low) && sameFloat(a.High, b.High) &&
+		a.Level == b.Level && a.Method == b.Method && a.Resamples == b.Resamples
+}
+
+// MarkerSummary is what reprocessing did to one marker series over every
+// reprocessed visit, for a coordinator who cannot read forty lines per
+// visit: in how many visits it moved, the median value before and after
+// and the median and largest change (over visits where it was computable
+// both times), the visits where it became computable or stopped being so,
+// and the intervals it gained or lost with their median width.
+type MarkerSummary struct {
+	Key  string
+	Unit string
+	// Changed is the number of visits where the marker moved at all; Both
+	// those where it was computable before and after.
+	Changed, Both int
+	// Medians over the Both visits; Largest is the change of largest size,
+	// at LargestAt ("LW-0101 2023-03-06, visit 7").
+	MedianOld, MedianNew, MedianChange, Largest float64
+	LargestAt                                   string
+	BecameComputable, LostComputable            int
+	// GainedInterval and LostInterval count visits where the marker gained
+	// or lost an interval; MedianWidth is the median width (high − low) of
+	// the new intervals (0 when there are none).
+	GainedInterval, LostInterval int
+	MedianWidth                  float64
+}
+
+// Summary gathers the report's changes per marker series, in the order in
+// which the series first appear.
+func (r ReprocessReport) Summary() []MarkerSummary {
+	type acc struct {
+		MarkerSummary
+		olds, news, diffs, widths []float64
+	}
+	var order []string
+	by := map[string]*acc{}
+	for _, v := range r.Visits {
+		at := fmt.Sprintf("%s %s, visit %d", v.PatientCode, v.Date, v.VisitID)
+		for _, c := range v.Changes {
+			a := by[c.Key]
+			if a == nil {
+				a = &acc{MarkerSummary: MarkerSummary{Key: c.Key, Unit: c.Unit}}
+				by[c.Key] = a
+				order = append(order, c.Key)
+			}
+			a.Changed++
+			switch {
+			case c.OldComputable && c.NewComputable:
+				a.Both++
+				a.olds, a.news = append(a.olds, c.Old), append(a.news, c.New)
+				d := c.New - c.Old
+				a.diffs = append(a.diffs, d)
+				if a.LargestAt == "" || math.Abs(d) > math.Abs(a.Largest) {
+					a.Largest, a.LargestAt = d, at
+				}
+			case c.NewComputable:
+				a.BecameComputable++
+			case c.OldComputable:
+				a.LostComputable++
+			}
+			switch {
+			case c.OldInterval == nil && c.NewInterval != nil:
+				a.GainedInterval++
+			case c.OldInterval != nil && c.NewInterval == nil:
+				a.LostInterval++
+			}
+			if c.NewInterval != nil {
+				a.widths = append(a.widths, c.NewInterval.High-c.NewInterval.Low)
+			}
+		}
+	}
+	out := make([]MarkerSummary, 0, len(order))
+	for _, k := range order {
+		a := by[k]
+		a.MedianOld, a.MedianNew, a.MedianChange = median(a.olds), median(a.news), median(a.diffs)
+		a.MedianWidth = median(a.widths)
+		out = append(out, a.MarkerSummary)
+	}
+	return out
+}
+
+// median of xs (the mean of the middle two for an even count; 0 for none).
+func median(xs []float64) float64 {
+	if len(xs) == 0 {
+		return 0
+	}
+	s := slices.Clone(xs)
+	slices.Sort(s)
+	n := len(s)
+	if n%2 == 1 {
+		return s[n/2]
+	}
+	return (s[n/2-1] + s[n/2]) / 2
 }

@@ -150,6 +150,9 @@ func checkAnalysis(a Analysis) error {
 		if !m.Computable && m.Reason == "" {
 			return fmt.Errorf("%w: marker %s: not computable without a reason", ErrInvalid, m.Key())
 		}
+		if err := checkInterval(m); err != nil {
+			return fmt.Errorf("%w: marker %s: %v", ErrInvalid, m.Key(), err)
+		}
 	}
 	for _, f := range a.Flags {
 		if f.Severity != metrics.Caution && f.Severity != metrics.NotComparable {
@@ -157,6 +160,66 @@ func checkAnalysis(a Analysis) error {
 		}
 	}
 	return nil
+}
+
+// checkInterval refuses an interval the markers table would refuse (see
+// migration 0004): one on a marker that is not computable, a figure that is
+// not finite, low above high, a level outside (0, 1), a negative standard
+// error or resample count, no method.
+func checkInterval(m metrics.Marker) error {
+	u := m.Uncertainty
+	if u == nil {
+		return nil
+	}
+	switch {
+	case !m.Computable:
+		return errors.New("interval on a marker that is not computable")
+	case !finite(u.SE) || !finite(u.Low) || !finite(u.High) || !finite(u.Level):
+		return fmt.Errorf("interval figures se %v, low %v, high %v, level %v are not all finite", u.SE, u.Low, u.High, u.Level)
+	case u.SE < 0:
+		return fmt.Errorf("interval standard error %v is negative", u.SE)
+	case u.Low > u.High:
+		return fmt.Errorf("interval low %v is above high %v", u.Low, u.High)
+	case u.Level <= 0 || u.Level >= 1:
+		return fmt.Errorf("interval level %v is not between 0 and 1", u.Level)
+	case u.Method == "":
+		return errors.New("interval without a method")
+	case u.Resamples < 0:
+		return fmt.Errorf("interval resamples %d is negative", u.Resamples)
+	}
+	return nil
+}
+
+func finite(v float64) bool { return !math.IsNaN(v) && !math.IsInf(v, 0) }
+
+// intervalArgs are the six interval columns of a marker row: all NULL when
+// the marker has no interval (settings v1, or not computable).
+func intervalArgs(u *metrics.Uncertainty) []any {
+	if u == nil {
+		return []any{nil, nil, nil, nil, nil, nil}
+	}
+	return []any{u.SE, u.Low, u.High, u.Level, u.Method, u.Resamples}
+}
+
+// intervalScan reads the six interval columns back.
+type intervalScan struct {
+	se, low, high, level sql.NullFloat64
+	method               sql.NullString
+	resamples            sql.NullInt64
+}
+
+func (i *intervalScan) dest() []any {
+	return []any{&i.se, &i.low, &i.high, &i.level, &i.method, &i.resamples}
+}
+
+// uncertainty is the interval read, or nil when the row has none (the
+// schema keeps the six columns all NULL or all set).
+func (i *intervalScan) uncertainty() *metrics.Uncertainty {
+	if !i.method.Valid {
+		return nil
+	}
+	return &metrics.Uncertainty{SE: i.se.Float64, Low: i.low.Float64, High: i.high.Float64,
+		Level: i.level.Float64, Method: i.method.String, Resamples: int(i.resamples.Int64)}
 }
 
 func (s *Store) writeAnalysis(ctx context.Context, tx *sql.Tx, visitID int64, a Analysis) error {
@@ -199,15 +262,17 @@ func (s *Store) writeAnalysis(ctx context.Context, tx *sql.Tx, visitID int64, a 
 		return fmt.Errorf("conditions: %w", err)
 	}
 	mst, err := tx.PrepareContext(ctx, `
-		INSERT INTO markers (visit_id, name, region, state, value, unit, computable, reason, settings_version, settings_hash)
-		VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?, ?)`)
+		INSERT INTO markers (visit_id, name, region, state, value, unit, computable, reason, settings_version, settings_hash,
+			interval_se, interval_low, interval_high, interval_level, interval_method, interval_resamples)
+		VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?)`)
 	if err != nil {
 		return fmt.Errorf("markers: %w", err)
 	}
 	defer mst.Close()
 	for _, m := range res.Markers {
-		if _, err := mst.ExecContext(ctx, visitID, m.Name, m.Region, string(m.State), m.Value, m.Unit,
-			m.Computable, m.Reason, res.SettingsVersion, res.SettingsHash); err != nil {
+		args := append([]any{visitID, m.Name, m.Region, string(m.State), m.Value, m.Unit,
+			m.Computable, m.Reason, res.SettingsVersion, res.SettingsHash}, intervalArgs(m.Uncertainty)...)
+		if _, err := mst.ExecContext(ctx, args...); err != nil {
 			return fmt.Errorf("marker %s: %w", m.Key(), err)
 		}
 	}
@@ -520,7 +585,9 @@ func (s *Store) loadVisits(ctx context.Context, where string, markerNames []stri
 		return nil, fmt.Errorf("store: recordings: %w", err)
 	}
 
-	mq := `SELECT x.visit_id, x.name, x.region, x.state, x.value, x.unit, x.computable, x.reason FROM markers x` + join
+	mq := `SELECT x.visit_id, x.name, x.region, x.state, x.value, x.unit, x.computable, x.reason,
+		x.interval_se, x.interval_low, x.interval_high, x.interval_level, x.interval_method, x.interval_resamples
+		FROM markers x` + join
 	margs := args
 	if len(markerNames) > 0 {
 		mq += and + `x.name IN (?` + strings.Repeat(`, ?`, len(markerNames)-1) + `)`
@@ -530,10 +597,13 @@ func (s *Store) loadVisits(ctx context.Context, where string, markerNames []stri
 		var id int64
 		var m metrics.Marker
 		var state string
-		if err := sc(&id, &m.Name, &m.Region, &state, &m.Value, &m.Unit, &m.Computable, &m.Reason); err != nil {
+		var iv intervalScan
+		if err := sc(append([]any{&id, &m.Name, &m.Region, &state, &m.Value, &m.Unit, &m.Computable, &m.Reason},
+			iv.dest()...)...); err != nil {
 			return err
 		}
 		m.State = ingest.EyeState(state)
+		m.Uncertainty = iv.uncertainty()
 		if i, ok := index[id]; ok {
 			out[i].Markers = append(out[i].Markers, m)
 		}

@@ -106,12 +106,17 @@ type CohortBody struct {
 	Overdue, Flagged, Reliable bool
 	Sort                       string
 	SortOptions                []Pair // Label: shown, Value: key
-	Markers                    []string
-	Rows                       []CohortRow
-	Total                      int
-	PageText                   string
-	PrevURL, NextURL           string
-	CSVURL                     string
+	// Verdict is the verdict filter's value ("" for all), Verdicts its
+	// choices; VerdictOf names the marker the verdict column judges.
+	Verdict          string
+	Verdicts         []Pair
+	VerdictOf        string
+	Markers          []string
+	Rows             []CohortRow
+	Total            int
+	PageText         string
+	PrevURL, NextURL string
+	CSVURL           string
 }
 
 // CohortRow is one patient's follow-up.
@@ -126,6 +131,23 @@ type CohortRow struct {
 	Overdue     bool
 	Flags       []string
 	Directions  []Direction
+	// Spark is the small line of the first main marker's comparable
+	// values (nil without any).
+	Spark *Spark
+	// Verdict is the first main marker against the clinic's controls in
+	// words, VerdictKey its CSS class suffix ("down", "up", "steady",
+	// "none"), VerdictWhy the reason when there is none; Concern when the
+	// change goes the way that worries.
+	Verdict    string
+	VerdictKey string
+	VerdictWhy string
+	Concern    bool
+}
+
+// Spark is a small inline SVG line: its points in SVG user units, the
+// latest point and a text alternative.
+type Spark struct {
+	Points, LastX, LastY, Label, Width, Height string
 }
 
 // Direction is a marker's change over the patient's comparable visits in

@@ -1,0 +1,167 @@
+package server
+
+import (
+	"net/http"
+	"strconv"
+	"time"
+
+	"longwave/metrics"
+	"longwave/server/store"
+	"longwave/trends"
+	"longwave/web"
+)
+
+// summaryPage is the one-page summary of a patient for the clinic letter
+// (issue 11, point 7): the headline markers with their verdicts, every
+// comparable visit's spectrum in one picture, the flags in words, the
+// advisory and the settings version, laid out for an A4 page (the print
+// rules of longwave.css). Each view is audited as a patient view.
+func (s *Server) summaryPage(w http.ResponseWriter, r *http.Request) {
+	code, err := patientCode(r)
+	if err != nil {
+		s.fail(w, r, err)
+		return
+	}
+	c, err := s.course(r, code)
+	if err != nil {
+		s.fail(w, r, err)
+		return
+	}
+	displays, err := s.courseDisplays(r, c)
+	if err != nil {
+		s.fail(w, r, err)
+		return
+	}
+	if err := s.audit(r, store.AuditPatientView, code+" (summary)"); err != nil {
+		s.fail(w, r, err)
+		return
+	}
+	page := summaryView(c, displays, s.now())
+	page.Frame = s.frame(r, "Summary "+code, "")
+	s.render(w, r, http.StatusOK, page)
+}
+
+// summaryView lays out the summary of a course.
+func summaryView(c trends.Course, displays map[int64]metrics.Display, now time.Time) *web.SummaryPage {
+	p := c.Patient
+	comparable := 0
+	for _, v := range c.Visits {
+		if v.Comparable {
+			comparable++
+		}
+	}
+	born := "not given"
+	switch {
+	case p.BirthDate != "":
+		born = p.BirthDate
+	case p.BirthYear != 0:
+		born = strconv.Itoa(p.BirthYear)
+	}
+	span := "no visit yet"
+	if n := len(c.Visits); n > 0 {
+		span = c.Visits[0].Date + " to " + c.Visits[n-1].Date
+	}
+	due, _ := nextDueText(c)
+	page := &web.SummaryPage{
+		Code:      p.Code,
+		CourseURL: courseURL(p.Code),
+		Printed:   now.UTC().Format(time.DateOnly),
+		Facts: []web.Pair{
+			{Label: "Sex", Value: sexText(p.Sex)},
+			{Label: "Born", Value: born},
+			{Label: "Group", Value: orNone(p.Group)},
+			{Label: "Visits", Value: strconv.Itoa(len(c.Visits)) + " (" + strconv.Itoa(comparable) + " comparable), " + span},
+			{Label: "Next due", Value: due},
+		},
+		Settings:  "Processing settings version " + c.SettingsVersion + " (" + shortHash(c.SettingsHash) + ")",
+		Advisory:  c.Advisory,
+		Verdicts:  trends.AdvisoryVerdict,
+		ChartData: map[string]web.Option{},
+	}
+	picked := chartSeries(c.Series)
+	for _, name := range headlineMarkers {
+		row := web.SummaryRow{Marker: markerTitle(name)}
+		sr, ok := findSeries(picked, name)
+		if !ok {
+			row.Verdict = "not measured"
+			page.Rows = append(page.Rows, row)
+			continue
+		}
+		unit := displayUnit(sr.Unit)
+		ch := sr.Change
+		row.Where = regionName(sr.Region) + seriesState(sr.State)
+		if ch.Points > 0 {
+			row.Latest = withUnit(sig(ch.LatestValue), unit) + " (" + ch.LatestDate + ")"
+			row.First = withUnit(sig(ch.BaselineValue), unit) + " (" + ch.BaselineDate + ")"
+		} else {
+			row.Latest, row.First = "–", "–"
+		}
+		verdict, known, concern, _ := headlineWords(sr)
+		row.Concern = concern
+		perYear := unit + "/y"
+		if unit == "" {
+			perYear = "per year"
+		}
+		if ch.Slope.Known {
+			row.Slope = sig(ch.Slope.PerYear) + " " + perYear + " (95 % " + sig(ch.Slope.CILow) + " to " + sig(ch.Slope.CIHigh) + ")"
+		} else {
+			row.Slope = "not yet (" + strconv.Itoa(ch.Points) + " comparable)"
+		}
+		if known {
+			row.Verdict = verdict
+			row.Basis = ch.Verdict.Basis
+			if ch.Expected.Known {
+				row.Basis = "controls " + sig(ch.Expected.PerYear) + " " + perYear + "; a control's slope lies in " +
+					sig(ch.Verdict.ControlRangeLow) + " to " + sig(ch.Verdict.ControlRangeHigh)
+			}
+		} else {
+			row.Verdict = "no verdict"
+			row.Basis = sentence(peopleText(firstNonEmpty(ch.Verdict.Reason, ch.Verdict.Text)))
+		}
+		page.Rows = append(page.Rows, row)
+	}
+	if opt, box, ok := spectraOverlay(c, displays); ok {
+		box.Key = "spectra"
+		page.ChartData[box.Key] = opt
+		page.Overlay = box
+	}
+	for _, v := range c.Visits {
+		for _, f := range v.Flags {
+			fv := flagView(f)
+			page.Flags = append(page.Flags, web.SummaryFlag{Date: v.Date, Severity: fv.Severity, SeverityKey: fv.SeverityKey,
+				Text: ruleText(f.Rule), Markers: fv.Markers})
+		}
+	}
+	if basis := firstBasis(c); basis != "" {
+		page.Basis = "Verdicts against " + basis + "."
+	}
+	return page
+}
+
+// firstBasis is the basis of the first known verdict of a headline marker
+// ("clinic controls: 26 persons, …"), "" when none is known.
+func firstBasis(c trends.Course) string {
+	for _, sr := range chartSeries(c.Series) {
+		if contains(headlineMarkers, sr.Marker) && sr.Change.Verdict.Known && sr.Change.Verdict.Basis != "" {
+			return sr.Change.Verdict.Basis
+		}
+	}
+	return ""
+}
+
+func firstNonEmpty(s ...string) string {
+	for _, x := range s {
+		if x != "" {
+			return x
+		}
+	}
+	return ""
+}
+
+// shortHash is the first 12 hex digits of a settings hash.
+func shortHash(h string) string {
+	if len(h) > 12 {
+		return h[:12]
+	}
+	return h
+}

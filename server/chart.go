@@ -78,6 +78,7 @@ func courseChart(sr trends.Series, compact bool) (web.Option, web.CourseChart) {
 		legend = opts.Legend{Show: opts.Bool(false)}
 		xAxis.SplitNumber = 3
 		yAxis.SplitNumber = 3
+		yAxis.Name = "" // the unit is in the card's figures
 	}
 	c := web.NewChart()
 	c.SetGlobalOptions(

@@ -104,7 +104,7 @@ func courseBody(c trends.Course, displays map[int64]metrics.Display, canAdd bool
 			Conditions: courseConditions(v),
 		})
 	}
-	if opt, box, ok := spectraOverlay(c, displays); ok {
+	if opt, box, ok := spectraOverlay(c, displays, false); ok {
 		box.Key = "spectra"
 		page.ChartData[box.Key] = opt
 		page.Overlay = box
@@ -290,7 +290,9 @@ const overlayMaxHz = 30
 // page's switch shows them (their names go to the page in the option's
 // lwApart list, which charts.js reads). ok is false when no visit has a
 // stored spectrum.
-func spectraOverlay(c trends.Course, displays map[int64]metrics.Display) (web.Option, *web.OverlayBox, bool) {
+//
+// A compact overlay (the printed summary) has its legend along the top.
+func spectraOverlay(c trends.Course, displays map[int64]metrics.Display, compact bool) (web.Option, *web.OverlayBox, bool) {
 	type drawn struct {
 		date   string
 		apart  bool
@@ -364,10 +366,16 @@ func spectraOverlay(c trends.Course, displays map[int64]metrics.Display) (web.Op
 			charts.WithItemStyleOpts(opts.ItemStyle{Color: colour}))
 		extras = append(extras, web.SeriesExtra{Z: z})
 	}
+	grid := opts.Grid{Left: "12", Right: "170", Top: "30", Bottom: "8", ContainLabel: opts.Bool(true)}
+	legend := opts.Legend{Show: opts.Bool(true), Type: "scroll", Orient: "vertical", Right: "4", Top: "30", Selected: selected}
+	if compact {
+		grid = opts.Grid{Left: "8", Right: "28", Top: "46", Bottom: "4", ContainLabel: opts.Bool(true)}
+		legend = opts.Legend{Show: opts.Bool(true), Top: "0", Left: "center", Selected: selected}
+	}
 	c2.SetGlobalOptions(
-		charts.WithGridOpts(opts.Grid{Left: "12", Right: "170", Top: "30", Bottom: "8", ContainLabel: opts.Bool(true)}),
+		charts.WithGridOpts(grid),
 		charts.WithTooltipOpts(opts.Tooltip{Trigger: "item"}),
-		charts.WithLegendOpts(opts.Legend{Show: opts.Bool(true), Type: "scroll", Orient: "vertical", Right: "4", Top: "30", Selected: selected}),
+		charts.WithLegendOpts(legend),
 		charts.WithXAxisOpts(opts.XAxis{Type: "value", Name: "Hz", Min: 1, Max: overlayMaxHz, AxisLine: web.AxisLine(), SplitLine: web.GridLines()}),
 		charts.WithYAxisOpts(opts.YAxis{Type: "log", Name: "µV²/Hz", AxisLine: web.AxisLine(), SplitLine: web.GridLines()}),
 	)
@@ -500,7 +508,7 @@ func noteRepeats(page *web.CourseBody) []web.Note {
 		}
 		fields = append(fields, &ch.Reference, &ch.Caption)
 		if n := ch.Norm; n != nil {
-			fields = append(fields, &n.Basis, &n.Note, &n.Advisory)
+			fields = append(fields, &n.Note, &n.Advisory) // the basis stays: a short fact of each norm
 			if !n.Known {
 				fields = append(fields, &n.Verdict)
 			}
@@ -520,6 +528,37 @@ func noteRepeats(page *web.CourseBody) []web.Note {
 		for j := range page.Groups[i].Charts {
 			addChart(&page.Groups[i].Charts[j])
 		}
+	}
+	// A published ageing note repeats as a whole (under every alpha
+	// marker): text, figure and source go to one note together.
+	type litRef struct{ v *web.LiteratureView }
+	var lits []litRef
+	for i := range page.Headline {
+		if n := page.Headline[i].Chart.Norm; n != nil {
+			for j := range n.Literature {
+				lits = append(lits, litRef{&n.Literature[j]})
+			}
+		}
+	}
+	for i := range page.Groups {
+		for j := range page.Groups[i].Charts {
+			if n := page.Groups[i].Charts[j].Norm; n != nil {
+				for k := range n.Literature {
+					lits = append(lits, litRef{&n.Literature[k]})
+				}
+			}
+		}
+	}
+	litText := func(l *web.LiteratureView) string {
+		t := l.Text
+		if l.PerYear != "" {
+			t += " (" + l.PerYear + ")"
+		}
+		return t + ". Source: " + l.Source
+	}
+	litCount := map[string]int{}
+	for _, l := range lits {
+		litCount[litText(l.v)]++
 	}
 	// A line of the overview such as "No verdict against the controls:
 	// <reason>" repeats by its reason: the part after the first ": " is
@@ -544,6 +583,19 @@ func noteRepeats(page *web.CourseBody) []web.Note {
 			notes = append(notes, web.Note{N: n, Text: sentence(t)})
 		}
 		*f = strings.TrimSuffix(*f, t) + "see note " + strconv.Itoa(n)
+	}
+	for _, l := range lits {
+		t := litText(l.v)
+		if litCount[t] < 2 {
+			continue
+		}
+		n, ok := number[t]
+		if !ok {
+			n = len(notes) + 1
+			number[t] = n
+			notes = append(notes, web.Note{N: n, Text: t})
+		}
+		*l.v = web.LiteratureView{Text: "See note " + strconv.Itoa(n)}
 	}
 	return notes
 }

@@ -3,6 +3,7 @@ package server
 import (
 	"net/http"
 	"strconv"
+	"strings"
 	"time"
 
 	"longwave/metrics"
@@ -74,7 +75,7 @@ func summaryView(c trends.Course, displays map[int64]metrics.Display, now time.T
 			{Label: "Next due", Value: due},
 		},
 		Settings:  "Processing settings version " + c.SettingsVersion + " (" + shortHash(c.SettingsHash) + ")",
-		Advisory:  c.Advisory,
+		Advisory:  sentence(c.Advisory),
 		Verdicts:  trends.AdvisoryVerdict,
 		ChartData: map[string]web.Option{},
 	}
@@ -120,7 +121,18 @@ func summaryView(c trends.Course, displays map[int64]metrics.Display, now time.T
 		}
 		page.Rows = append(page.Rows, row)
 	}
-	if opt, box, ok := spectraOverlay(c, displays); ok {
+	// One reason for every missing verdict is said once, under the table.
+	same := len(page.Rows) > 0
+	for _, r := range page.Rows {
+		same = same && r.Verdict == "no verdict" && r.Basis == page.Rows[0].Basis
+	}
+	if same && len(page.Rows) > 1 {
+		page.NoVerdict = "No verdict against the clinic's controls for any of them: " + strings.ToLower(page.Rows[0].Basis[:1]) + page.Rows[0].Basis[1:]
+		for i := range page.Rows {
+			page.Rows[i].Basis = ""
+		}
+	}
+	if opt, box, ok := spectraOverlay(c, displays, true); ok {
 		box.Key = "spectra"
 		page.ChartData[box.Key] = opt
 		page.Overlay = box
@@ -128,6 +140,9 @@ func summaryView(c trends.Course, displays map[int64]metrics.Display, now time.T
 	for _, v := range c.Visits {
 		for _, f := range v.Flags {
 			fv := flagView(f)
+			if len(f.Markers) > 4 {
+				fv.Markers = strconv.Itoa(len(f.Markers)) + " markers"
+			}
 			page.Flags = append(page.Flags, web.SummaryFlag{Date: v.Date, Severity: fv.Severity, SeverityKey: fv.SeverityKey,
 				Text: ruleText(f.Rule), Markers: fv.Markers})
 		}

@@ -444,6 +444,7 @@ type SummaryPage struct {
 	Flags     []SummaryFlag
 	Settings  string
 	Basis     string
+	NoVerdict string // the one reason when no headline marker has a verdict
 	Advisory  string
 	Verdicts  string // the advisory of the verdicts against the controls
 	ChartData map[string]Option

@@ -113,6 +113,12 @@
     window.addEventListener('afterprint', resizeAll);
   }
 
+  function resizeAll() {
+    for (var i = 0; i < drawn.length; i++) {
+      drawn[i].resize();
+    }
+  }
+
   if (document.readyState === 'loading') {
     document.addEventListener('DOMContentLoaded', draw);
   } else {

@@ -346,6 +346,7 @@ func TestBrowser(t *testing.T) {
 		t.Errorf("tooltip of the hollow point reads %q, want the age and the reason", tip)
 	}
 	shot("top-course-tooltip")
+	checkFits(t, ctx, "course with a tooltip")
 	checkWordsOnScreen(t, ctx, "course with a tooltip")
 	shot("course")
 	must("print media", chromedp.Do(ctx, func(ctx context.Context, tg *chromedp.Target) (chromedp.Void, error) {

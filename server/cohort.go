@@ -10,6 +10,7 @@ import (
 	"sync"
 	"time"
 
+	"longwave/metrics"
 	"longwave/trends"
 	"longwave/web"
 )
@@ -245,11 +246,12 @@ func cohortBody(c *trends.Cohort, cq cohortQuery, rows []trends.CohortRow) *web.
 		page.Verdicts = append(page.Verdicts, web.Pair{Label: v.label, Value: v.value})
 	}
 	for _, ref := range c.Markers {
-		page.Markers = append(page.Markers, markerTitle(ref.Marker))
+		page.Markers = append(page.Markers, shortTitle(ref.Marker))
 	}
 	if len(c.Markers) > 0 {
 		t := markerTitle(c.Markers[0].Marker)
 		page.VerdictOf = strings.ToLower(t[:1]) + t[1:]
+		page.VerdictShort = shortTitle(c.Markers[0].Marker)
 	}
 	page.Rows = make([]web.CohortRow, 0, hi-lo)
 	for _, row := range rows[lo:hi] {
@@ -368,3 +370,19 @@ func sparkLine(values []trends.ChangePoint, marker string) *web.Spark {
 
 // decimalsDot formats an SVG coordinate (one decimal, ASCII minus).
 func decimalsDot(v float64) string { return strconv.FormatFloat(v, 'f', 1, 64) }
+
+// shortTitles are the headline markers' names for narrow column heads
+// (PDR is the trade's own abbreviation).
+var shortTitles = map[string]string{
+	metrics.PDRFrequency:      "PDR",
+	metrics.AlphaReactivity:   "Alpha reactivity",
+	metrics.ThetaAlphaRatio:   "Theta / alpha",
+	metrics.AperiodicExponent: "Aperiodic exponent",
+}
+
+func shortTitle(marker string) string {
+	if t, ok := shortTitles[marker]; ok {
+		return t
+	}
+	return markerTitle(marker)
+}

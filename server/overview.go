@@ -337,6 +337,10 @@ func spectraOverlay(c trends.Course, displays map[int64]metrics.Display, compact
 		name := dr.date
 		colour, width, style := "", 1.6, "solid"
 		z := 2
+		if dr.apart && compact {
+			box.Apart++
+			continue // the summary leaves them out and says how many
+		}
 		if dr.apart {
 			name += " (not comparable)"
 			colour, width, style = web.ColourApartGrey, 1.2, "dashed"
@@ -369,7 +373,7 @@ func spectraOverlay(c trends.Course, displays map[int64]metrics.Display, compact
 	grid := opts.Grid{Left: "12", Right: "170", Top: "30", Bottom: "8", ContainLabel: opts.Bool(true)}
 	legend := opts.Legend{Show: opts.Bool(true), Type: "scroll", Orient: "vertical", Right: "4", Top: "30", Selected: selected}
 	if compact {
-		grid = opts.Grid{Left: "8", Right: "28", Top: "46", Bottom: "4", ContainLabel: opts.Bool(true)}
+		grid = opts.Grid{Left: "8", Right: "36", Top: "30", Bottom: "4", ContainLabel: opts.Bool(true)}
 		legend = opts.Legend{Show: opts.Bool(true), Top: "0", Left: "center", Selected: selected}
 	}
 	c2.SetGlobalOptions(
@@ -379,7 +383,7 @@ func spectraOverlay(c trends.Course, displays map[int64]metrics.Display, compact
 		charts.WithXAxisOpts(opts.XAxis{Type: "value", Name: "Hz", Min: 1, Max: overlayMaxHz, AxisLine: web.AxisLine(), SplitLine: web.GridLines()}),
 		charts.WithYAxisOpts(opts.YAxis{Type: "log", Name: "µV²/Hz", AxisLine: web.AxisLine(), SplitLine: web.GridLines()}),
 	)
-	box.Apart = len(apartNames)
+	box.Apart += len(apartNames)
 	box.Comparable = comparable
 	sort.Strings(apartNames)
 	return web.OptionOf(c2, web.Extras{Confine: true, Series: extras, Toggle: apartNames}), box, true

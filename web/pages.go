@@ -111,6 +111,7 @@ type CohortBody struct {
 	Verdict          string
 	Verdicts         []Pair
 	VerdictOf        string
+	VerdictShort     string // the same marker's name for a column head
 	Markers          []string
 	Rows             []CohortRow
 	Total            int

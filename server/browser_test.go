@@ -310,6 +310,11 @@ func TestBrowser(t *testing.T) {
 		t.Errorf("course shows %d charts with its groups open, want the overview's, the spectra and the groups' (12 or more)", len(charts))
 	}
 	checkNoRepeats(t, ctx)
+	must("scroll to the groups", chromedp.Do(ctx, chromedp.Evaluate[chromedp.Void](`document.querySelector('details.group').scrollIntoView()`)))
+	shot("top-course-groups")
+	must("scroll to the notes", chromedp.Do(ctx, chromedp.Evaluate[chromedp.Void](`document.getElementById('visits').scrollIntoView()`)))
+	shot("top-course-notes")
+	must("scroll back to the top", chromedp.Do(ctx, chromedp.Evaluate[chromedp.Void](`window.scrollTo(0, 0)`)))
 	bands := 0
 	firstPoints := 0
 	for i, c := range charts {

@@ -111,7 +111,7 @@ func courseBody(c trends.Course, displays map[int64]metrics.Display, canAdd bool
 	}
 	// Band powers: one chart per region, the four bands together.
 	bands := web.ChartGroup{Title: "Band powers by region",
-		Intro: "The share of each band in the power from 1 to 30 Hz, eyes closed, one chart per region. Hollow grey points: visits that cannot be compared for that value."}
+		Intro: "The share of each band in the power from 1 to 30 Hz, eyes closed, one chart per region, with the latest share and its slope in percentage points a year (pp/y). Hollow grey points: visits that cannot be compared for that value."}
 	for _, region := range []string{metrics.RegionPosterior, metrics.RegionGlobal, metrics.RegionFrontal, metrics.RegionLeftOccipital, metrics.RegionRightOccipital} {
 		if opt, chart, ok := bandChart(c.Series, region); ok {
 			chart.Key = nextKey()
@@ -441,9 +441,9 @@ func bandChart(all []trends.Series, region string) (web.Option, web.CourseChart,
 		ch := sr.Change
 		value := "–"
 		if ch.Points > 0 {
-			value = decimals(100*ch.LatestValue, 1) + " % latest"
+			value = decimals(100*ch.LatestValue, 1) + " % now"
 			if ch.Slope.Known {
-				value += ", " + signed(100*ch.Slope.PerYear) + " points a year"
+				value += ", " + signed(100*ch.Slope.PerYear) + " pp/y"
 			}
 		}
 		figures = append(figures, web.Pair{Label: strings.ToUpper(b.name[:1]) + b.name[1:], Value: value})
@@ -473,7 +473,7 @@ func bandChart(all []trends.Series, region string) (web.Option, web.CourseChart,
 	)
 	opt := web.OptionOf(c, web.Extras{UseUTC: true, Confine: true, Series: extras})
 	chart := web.CourseChart{ChartBox: web.ChartBox{Title: "Band powers · " + regionName(region) + " · eyes closed"}, Figures: figures,
-		Reference: "no band drawn: relative band powers have no advisory reference range in longwave's sources"}
+		Reference: "relative band powers have no advisory reference range in longwave's sources"}
 	return opt, chart, true
 }
 
@@ -608,7 +608,7 @@ func noteRepeats(page *web.CourseBody) []web.Note {
 // ": " of an overview line ("No verdict against the controls: …"), else
 // the whole text.
 func noteText(s string) string {
-	for _, lead := range []string{"No verdict against the controls: ", "Slope: "} {
+	for _, lead := range []string{"No verdict against the controls: ", "No verdict: ", "Slope: "} {
 		if strings.HasPrefix(s, lead) {
 			return strings.TrimPrefix(s, lead)
 		}

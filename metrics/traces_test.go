@@ -1,8 +1,11 @@
 package metrics
 
 import (
+	"encoding/json"
 	"errors"
 	"math"
+	"os"
+	"path/filepath"
 	"slices"
 	"testing"
 
@@ -275,5 +278,114 @@ func BenchmarkNewTraceSource(b *testing.B) {
 		if _, err := NewTraceSource(rec, V1()); err != nil {
 			b.Fatal(err)
 		}
+	}
+}
+
+// mneGolden is the part of testdata/ingest/mne/<file>.json (made by
+// testdata/ingest/mne/make_golden.py with MNE-Python's EDF reader) this
+// test reads: per channel, values at a few sample indices and the sum
+// over the whole recording, in µV.
+type mneGolden struct {
+	NTimes   int     `json:"n_times"`
+	SFreq    float64 `json:"sfreq"`
+	Channels []struct {
+		Name    string    `json:"name"`
+		Indices []int     `json:"indices"`
+		Values  []float64 `json:"values"`
+		Sum     float64   `json:"sum"`
+	} `json:"channels"`
+}
+
+// TestTracePageAgainstMNE checks the recorded pages of a real clinical
+// recording (../shared/data/mne-testing-data/MB0400FU.EDF: the 19
+// positions and two ear electrodes at 200 Hz) against MNE-Python's reading
+// of the same file: over a page holding the whole recording, the
+// longitudinal bipolar row a–b at sample i is a[i] − b[i] minus the mean of
+// a − b, and the common-average row of c is c[i] − mean of the good 19 at
+// i, minus its own mean, all computed here from MNE's values and sums.
+func TestTracePageAgainstMNE(t *testing.T) {
+	path := filepath.Join(sharedData(t, "mne-testing-data"), "MB0400FU.EDF")
+	raw, err := os.ReadFile(filepath.Join(moduleRoot(t), "testdata", "ingest", "mne", "MB0400FU.EDF.json"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	var g mneGolden
+	if err := json.Unmarshal(raw, &g); err != nil {
+		t.Fatal(err)
+	}
+	rec, err := ingest.ReadFile(path, ingest.Options{})
+	if err != nil {
+		t.Fatal(err)
+	}
+	ts, err := NewTraceSource(rec, V1())
+	if err != nil {
+		t.Fatal(err)
+	}
+	byLabel := map[string]int{}
+	for i, ch := range g.Channels {
+		if name, _, kind, ok := ingest.NormalizeLabel(ch.Name, ""); ok && kind == ingest.KindEEG {
+			byLabel[name] = i
+		}
+	}
+	n := float64(g.NTimes)
+	seconds := n / g.SFreq
+	// float32 samples of up to a few hundred µV carry about 3e-5 µV of
+	// rounding each; sums over 5,800 samples and MNE's float64 leave far
+	// less than this display tolerance.
+	const tol = 0.01
+	bip, err := ts.Page(0, seconds, MontageBipolar, false, 1<<30)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if len(bip.Channels) != len(BipolarPairs) {
+		t.Fatalf("%d bipolar rows, want %d", len(bip.Channels), len(BipolarPairs))
+	}
+	for k, row := range bip.Channels {
+		a, b := g.Channels[byLabel[BipolarPairs[k][0]]], g.Channels[byLabel[BipolarPairs[k][1]]]
+		mean := (a.Sum - b.Sum) / n
+		for j, i := range a.Indices {
+			want := a.Values[j] - b.Values[j] - mean
+			if got := float64(row.Samples[i]); math.Abs(got-want) > tol {
+				t.Errorf("%s[%d] = %.4f µV, MNE gives %.4f", row.Label, i, got, want)
+			}
+		}
+	}
+	avg, err := ts.Page(0, seconds, MontageAverage, false, 1<<30)
+	if err != nil {
+		t.Fatal(err)
+	}
+	var good []int // golden indices of the channels in the average
+	for _, row := range avg.Channels {
+		if !row.Bad {
+			good = append(good, byLabel[row.Label])
+		}
+	}
+	if len(good) < 15 {
+		t.Fatalf("only %d channels in the average", len(good))
+	}
+	sumGood := 0.0
+	for _, c := range good {
+		sumGood += g.Channels[c].Sum
+	}
+	for _, row := range avg.Channels {
+		c := g.Channels[byLabel[row.Label]]
+		mean := (c.Sum - sumGood/float64(len(good))) / n
+		for j, i := range c.Indices {
+			ref := 0.0
+			for _, gc := range good {
+				ref += g.Channels[gc].Values[j] / float64(len(good))
+			}
+			want := c.Values[j] - ref - mean
+			if got := float64(row.Samples[i]); math.Abs(got-want) > tol {
+				t.Errorf("average %s[%d] = %.4f µV, MNE gives %.4f", row.Label, i, got, want)
+			}
+		}
+	}
+	var labels []string
+	for _, row := range avg.Channels {
+		labels = append(labels, row.Label)
+	}
+	if !slices.Contains(labels, "A1") || !slices.Contains(labels, "A2") || len(labels) != 21 {
+		t.Errorf("average rows %q, want the 19 and the two ear electrodes", labels)
 	}
 }

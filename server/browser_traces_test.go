@@ -167,6 +167,21 @@ func browseTraces(t *testing.T, ctx context.Context, shot func(string)) {
 			must("next page", chromedp.Do(ctx, chromedp.KeyEvent(kb.ArrowRight)))
 		}
 	}
+	// A page is linked by the address: a reload there opens it again.
+	loc, err := chromedp.Run(ctx, chromedp.Location())
+	must("location", err)
+	page, _, _ := strings.Cut(loc, "#")
+	open := func(hash string) {
+		t.Helper()
+		must("open "+hash, chromedp.Do(ctx, chromedp.Navigate("about:blank"), chromedp.Navigate(page+hash)))
+	}
+	open("#from=60&montage=bipolar&filtered=0")
+	st = wait("linked page", `el.dataset.from === '60' && el.dataset.montage === 'bipolar' && el.dataset.filtered === '0'`)
+	if st.Rows != len(metrics.BipolarPairs) {
+		t.Errorf("linked page: %+v", st)
+	}
+	open("#from=900")
+	wait("linked page past the end", `el.dataset.from === '0'`)
 	var seen []string
 	for r := range rejected {
 		seen = append(seen, r)

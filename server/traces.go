@@ -3,6 +3,7 @@ package server
 import (
 	"context"
 	"errors"
+	"io/fs"
 	"math"
 	"net/http"
 	"net/url"
@@ -50,7 +51,7 @@ var traceHeights = []float64{20, 50, 100, 200, 500, 1000}
 // traceViewer is the visit page's viewer: its source, and a chart frame
 // built with go-echarts (grid, a seconds axis, a hidden µV axis) to which
 // static/traces.js adds each page's rows, windows and eye states.
-func traceViewer(v store.VisitRecord) *web.TraceViewer {
+func traceViewer(v store.VisitRecord, set metrics.Settings) *web.TraceViewer {
 	c := web.NewChart()
 	c.SetGlobalOptions(
 		charts.WithGridOpts(opts.Grid{Left: "58", Right: "64", Top: "22", Bottom: "30"}),
@@ -63,7 +64,10 @@ func traceViewer(v store.VisitRecord) *web.TraceViewer {
 	return &web.TraceViewer{
 		Source:   "/api/v1/visits/" + itoa(v.Visit.ID) + "/traces",
 		Duration: decimals(v.Conditions.Duration, 0) + " s",
-		Frame:    web.OptionOf(c, web.Extras{}),
+		Seconds:  v.Conditions.Duration,
+		Unshaded: "the first " + decimals(set.PeriodSkipSeconds, 1) + " s after each change of eye state, and the last seconds of a period too short for another " +
+			decimals(set.EpochSeconds, 1) + " s window",
+		Frame: web.OptionOf(c, web.Extras{}),
 		Colours: web.TraceColours{Trace: web.ColourTraceClose, Bad: web.ColourBadTrace, Kept: web.ColourKept, Rejected: web.ColourRejected, Edge: web.ColourWindowEdge,
 			Closed: web.ColourStateClose, Open: web.ColourStateOpen, Scale: web.ColourScale, Axis: web.ColourAxis},
 		Heights: traceHeights,
@@ -208,6 +212,10 @@ func (s *Server) apiVisitTraces(w http.ResponseWriter, r *http.Request) {
 		return
 	}
 	src, err := s.traces.get(ctx, v, s.traceBuilder(v))
+	if errors.Is(err, fs.ErrNotExist) {
+		s.fail(w, r, &appError{status: http.StatusNotFound, msg: "the recording file of this visit is not in the data folder", cause: err})
+		return
+	}
 	if err != nil {
 		s.fail(w, r, err)
 		return
@@ -264,16 +272,23 @@ func (s *Server) apiVisitTraces(w http.ResponseWriter, r *http.Request) {
 // version is unknown here).
 func (s *Server) traceBuilder(v store.VisitRecord) func(ctx context.Context) (*metrics.TraceSource, error) {
 	return func(ctx context.Context) (*metrics.TraceSource, error) {
-		set, ok := metrics.ByVersion(v.SettingsVersion)
-		if !ok || set.Hash() != v.SettingsHash {
-			set = s.pipe.Settings
-		}
+		set := s.visitSettings(v)
 		rec, err := s.pipe.DecodeStored(ctx, v.Visit.ID)
 		if err != nil {
 			return nil, err
 		}
 		return metrics.NewTraceSource(rec, set)
 	}
+}
+
+// visitSettings are the processing settings a visit's markers were made
+// with (the pipeline's when that version is unknown here).
+func (s *Server) visitSettings(v store.VisitRecord) metrics.Settings {
+	set, ok := metrics.ByVersion(v.SettingsVersion)
+	if !ok || set.Hash() != v.SettingsHash {
+		set = s.pipe.Settings
+	}
+	return set
 }
 
 // traceCache keeps the trace sources of the visits paged most recently,

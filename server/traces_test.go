@@ -10,6 +10,8 @@ import (
 	"sort"
 	"strconv"
 	"strings"
+	"sync"
+	"sync/atomic"
 	"testing"
 	"time"
 
@@ -183,6 +185,29 @@ func TestTracesAPIRefuses(t *testing.T) {
 	}
 }
 
+// TestTracesMissingFile: a visit whose stored file has gone from the data
+// folder answers 404 with the reason, not an internal error.
+func TestTracesMissingFile(t *testing.T) {
+	e := newEnv(t, "", Config{})
+	out := e.ingestVisit(visitSpec{code: "LW-0102", date: "2024-05-06", birthYear: 1949})
+	v, err := e.st.Visit(context.Background(), out.VisitID)
+	if err != nil || len(v.Recordings) != 1 {
+		t.Fatalf("visit: %v, %d recordings", err, len(v.Recordings))
+	}
+	path, err := e.st.StoredRecordingPath(context.Background(), v.Recordings[0].SHA256)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if err := os.Remove(path); err != nil {
+		t.Fatal(err)
+	}
+	c := e.signedIn(clinicianName)
+	status, body, _ := c.get("/api/v1/visits/" + itoa(out.VisitID) + "/traces")
+	if status != http.StatusNotFound || !strings.Contains(body, "not in the data folder") {
+		t.Errorf("missing file: %d %s, want 404 saying the file is not in the data folder", status, body)
+	}
+}
+
 // TestTracesHostileLabels: the hostile fixture's channel labels reach the
 // answer only as escaped JSON text.
 func TestTracesHostileLabels(t *testing.T) {
@@ -330,4 +355,44 @@ func BenchmarkTracesAPI(b *testing.B) {
 	b.ReportMetric(float64(quantile(warm, 0.5).Microseconds())/1000, "p50-ms")
 	b.ReportMetric(float64(quantile(warm, 0.95).Microseconds())/1000, "p95-ms")
 	b.ReportMetric(float64(maxBytes), "max-bytes")
+}
+
+// TestTraceCacheConcurrent: requests for one visit at once make one build
+// and all get its source.
+func TestTraceCacheConcurrent(t *testing.T) {
+	e := fixtureEnv(t)
+	c := e.signedIn(adminName)
+	id := fixtureVisitIDs(t, c, "LW-0101")[1]
+	v, err := e.st.Visit(context.Background(), id)
+	if err != nil {
+		t.Fatal(err)
+	}
+	var cache traceCache
+	var builds atomic.Int32
+	build := func(ctx context.Context) (*metrics.TraceSource, error) {
+		builds.Add(1)
+		return e.srv.traceBuilder(v)(ctx)
+	}
+	var wg sync.WaitGroup
+	got := make([]*metrics.TraceSource, 8)
+	for i := range got {
+		wg.Add(1)
+		go func(i int) {
+			defer wg.Done()
+			src, err := cache.get(context.Background(), v, build)
+			if err != nil {
+				t.Error(err)
+			}
+			got[i] = src
+		}(i)
+	}
+	wg.Wait()
+	if builds.Load() != 1 {
+		t.Errorf("%d builds for one visit, want 1", builds.Load())
+	}
+	for i, src := range got {
+		if src == nil || src != got[0] {
+			t.Errorf("request %d got another source", i)
+		}
+	}
 }

@@ -142,7 +142,7 @@ func (s *Server) visitPage(w http.ResponseWriter, r *http.Request) {
 			v.SettingsVersion + ", which makes none."
 	}
 	if len(v.Recordings) > 0 {
-		page.Traces = traceViewer(v)
+		page.Traces = traceViewer(v, s.visitSettings(v))
 	}
 	if d == nil {
 		page.NoDisplay = "No spectra or traces are stored for this visit."

@@ -315,8 +315,10 @@ func (*VisitPage) template() string { return "visit.html" }
 // chart frame built with go-echarts, the viewer's colours and the row
 // heights offered. It reaches the page as JSON data.
 type TraceViewer struct {
-	Source   string        `json:"source"` // the traces API of the visit
-	Duration string        `json:"-"`      // "150 s", for people
+	Source   string        `json:"source"`   // the traces API of the visit
+	Duration string        `json:"-"`        // "150 s", for people
+	Seconds  float64       `json:"duration"` // the recording's length, s
+	Unshaded string        `json:"-"`        // what lies in no window, for people
 	Frame    Option        `json:"frame"`
 	Colours  TraceColours  `json:"colours"`
 	Heights  []float64     `json:"heights"` // µV per row

@@ -30,7 +30,30 @@
       problem: document.getElementById('trace-problem')
     };
     var chart = echarts.init(box, null, { renderer: 'canvas' });
-    var state = { from: 0, duration: 0, height: 0, seq: 0, page: null };
+    var state = { from: 0, duration: cfg.duration || 0, height: 0, seq: 0, page: null };
+
+    // A page can be linked: #from=120&montage=bipolar&filtered=0 opens the
+    // viewer there (values it does not know are passed over).
+    function choose(sel, value) {
+      for (var i = 0; i < sel.options.length; i++) {
+        if (sel.options[i].value === value) {
+          sel.value = value;
+        }
+      }
+    }
+    location.hash.replace(/^#/, '').split('&').forEach(function (part) {
+      var kv = part.split('=');
+      var v = decodeURIComponent(kv[1] || '');
+      switch (kv[0]) {
+        case 'from':
+          if (/^[0-9]+$/.test(v) && (!state.duration || Number(v) < state.duration)) {
+            state.from = Math.floor(Number(v) / PAGE) * PAGE;
+          }
+          break;
+        case 'montage': choose(el.montage, v); break;
+        case 'filtered': choose(el.filtered, v); break;
+      }
+    });
 
     function query() {
       return '?from=' + state.from + '&seconds=' + PAGE + '&montage=' + encodeURIComponent(el.montage.value) +
@@ -64,6 +87,11 @@
         })
         .catch(function (err) {
           if (seq !== state.seq) {
+            return;
+          }
+          if (!state.page && state.from > 0) {
+            state.from = 0; // a linked page past the end: start at the beginning
+            load();
             return;
           }
           el.problem.textContent = 'Traces: ' + err.message;
@@ -102,16 +130,36 @@
       return (Math.round(v * 10) / 10).toString();
     }
 
+    // slots places the rows from the top, counting in rows: in the bipolar
+    // montage a chain starts where a row does not begin at the electrode
+    // the row above ends at, and a chain after the first starts one row
+    // lower (an empty row between chains).
+    function slots(page) {
+      var out = [];
+      var slot = 0;
+      var prevEnd = null;
+      page.channels.forEach(function (ch) {
+        var parts = ch.label.split('–');
+        if (page.montage === 'bipolar' && prevEnd !== null && parts[0] !== prevEnd) {
+          slot++;
+        }
+        prevEnd = parts.length === 2 ? parts[1] : null;
+        out.push(slot++);
+      });
+      return out;
+    }
+
     function draw(page) {
       var h = state.height;
-      var n = page.channels.length;
+      var at = slots(page);
+      var n = at.length ? at[at.length - 1] + 1 : 0; // rows including the gaps
       var end = page.from + page.seconds;
       var top = (n - 0.4) * h; // the eye-state band lies above the first row
       var band = 0.45 * h;
       var labels = {};
       var series = [];
       page.channels.forEach(function (ch, k) {
-        var off = (n - 1 - k) * h;
+        var off = (n - 1 - at[k]) * h;
         labels[Math.round(off * 1000)] = ch.label;
         var data = new Array(ch.samples.length);
         for (var i = 0; i < ch.samples.length; i++) {
@@ -191,10 +239,14 @@
         });
         el.rejected.appendChild(ul);
       }
+      if (window.history && history.replaceState) {
+        history.replaceState(null, '', '#from=' + page.from + '&montage=' + encodeURIComponent(page.montage) +
+          '&filtered=' + (page.filtered ? '1' : '0'));
+      }
       box.setAttribute('data-from', String(page.from));
       box.setAttribute('data-montage', page.montage);
       box.setAttribute('data-filtered', page.filtered ? '1' : '0');
-      box.setAttribute('data-rows', String(n));
+      box.setAttribute('data-rows', String(page.channels.length));
       box.removeAttribute('data-loading');
     }
 

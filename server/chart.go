@@ -301,7 +301,7 @@ func changeFigures(c trends.Change, unit string) []web.Pair {
 	case c.Reliable.Reason != "":
 		out = append(out, web.Pair{Label: "Reliable change", Value: peopleText(c.Reliable.Reason)})
 	}
-	if c.Expected.Known {
+	if c.Expected.Known && c.Expected.Verdict != "" { // a literature rate; the clinic norm has its own block
 		out = append(out, web.Pair{Label: "For age", Value: c.Expected.Verdict})
 	}
 	out = append(out, web.Pair{Label: "Direction", Value: directionWords(c.Direction)})

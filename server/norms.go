@@ -2,6 +2,7 @@ package server
 
 import (
 	"net/http"
+	"strings"
 	"sync"
 	"time"
 	"unicode"
@@ -74,6 +75,11 @@ func normView(sr trends.Series) *web.NormView {
 	if v.Patient.Known {
 		nv.Figures = append(nv.Figures, web.Pair{Label: "Patient's slope",
 			Value: sig(v.Patient.PerYear) + " " + perYear + " (95 % " + sig(v.Patient.CILow) + " to " + sig(v.Patient.CIHigh) + ")"})
+		if v.Patient.Noise != "" {
+			// This interval can differ from the least-squares one beside the
+			// chart: its noise is at least the clinic's.
+			nv.Note = strings.TrimSpace("The patient's slope here takes its noise from " + v.Patient.Noise + ". " + nv.Note)
+		}
 	}
 	if e := ch.Expected; e.Known && e.Basis == trends.BasisClinic {
 		nv.Figures = append(nv.Figures,

@@ -108,6 +108,10 @@ func TestCourseAgainstControls(t *testing.T) {
 		}
 	}
 
+	if strings.Contains(page, "<dt>For age</dt><dd></dd>") {
+		t.Error("an empty \"For age\" figure beside the clinic norm")
+	}
+
 	// A 23rd control: the norms are refitted at once (no timer).
 	saveCourse(t, e, tpl, "HM-C23", " Control ", 1950, 3, &seq, func(v int) float64 { return -0.02 * float64(v) }, rng)
 	if ex := pdrOf("LW-SLOW").Change.Expected; ex["persons"] != 23.0 || ex["visits"] != 91.0 {

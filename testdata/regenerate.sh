@@ -1,6 +1,7 @@
 #!/usr/bin/env bash
 # Re-makes every golden file from the reference libraries (Debian's
-# /usr/bin/python3 with python3-numpy, python3-scipy, python3-mne). .ci/run
+# /usr/bin/python3 with python3-numpy, python3-scipy, python3-mne,
+# python3-statsmodels). .ci/run
 # calls it and then fails if `git diff testdata` shows any change, so the
 # committed golden files cannot drift from the libraries they quote.
 set -euo pipefail
@@ -22,3 +23,6 @@ go test ./server/store/ -count=1 -run '^TestLiteratureRowsFile$' -update-literat
 
 echo "-- numpy/scipy regression and t quantiles"
 "$py" testdata/trends/make_golden.py
+
+echo "-- statsmodels MixedLM fits of the control norm"
+"$py" testdata/trends/mixed/make_golden.py

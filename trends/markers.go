@@ -8,36 +8,39 @@ import (
 
 // markerSpan is the frequency span in Hz a marker's computation draws on,
 // as DESIGN.md ("Markers", "Bands") defines it. It decides which markers a
-// hardware filter or a low sampling rate affects.
+// hardware filter or a low sampling rate affects. worrying is the marker's
+// direction of change that reads as slowing (WorryingDirection).
 type markerSpan struct {
-	name   string
-	lo, hi float64
+	name     string
+	lo, hi   float64
+	worrying Direction
 }
 
 // markerSpans lists every marker name of package metrics with its span.
 // Relative band powers are relative to the power over 1–30 Hz (their
 // denominator, metrics.V1 Bands.Total), the aperiodic fit over 2–40 Hz, the PDR search over 5–14 Hz,
 // the centre of gravity over 7–13 Hz, the bands delta 1–4, theta 4–8,
-// alpha 8–13, beta 13–30 Hz. Source: longwave design (DESIGN.md).
+// alpha 8–13, beta 13–30 Hz. Source: longwave design (DESIGN.md). The
+// worrying directions and their sources are WorryingDirection's.
 var markerSpans = []markerSpan{
-	{metrics.PDRFrequency, 5, 14},
-	{metrics.PDRCentroid, 7, 13},
-	{metrics.PDRLeft, 5, 14},
-	{metrics.PDRRight, 5, 14},
-	{metrics.PDRAsymmetry, 5, 14},
-	{metrics.AlphaReactivity, 8, 13},
-	{metrics.AlphaRatio, 8, 13},
-	{metrics.ThetaAlphaRatio, 4, 13},
-	{metrics.AperiodicExponent, 2, 40},
-	{metrics.AperiodicOffset, 2, 40},
-	{metrics.AperiodicR2, 2, 40},
-	{metrics.RelDelta, 1, 30},
-	{metrics.RelTheta, 1, 30},
-	{metrics.RelAlpha, 1, 30},
-	{metrics.RelBeta, 1, 30},
-	{metrics.SlowingRatio, 1, 30},
-	{metrics.FrontalPosteriorAlpha, 8, 13},
-	{metrics.DrowsinessIndex, 8, 13},
+	{metrics.PDRFrequency, 5, 14, DirectionDown},
+	{metrics.PDRCentroid, 7, 13, DirectionDown},
+	{metrics.PDRLeft, 5, 14, DirectionDown},
+	{metrics.PDRRight, 5, 14, DirectionDown},
+	{metrics.PDRAsymmetry, 5, 14, DirectionUnknown},
+	{metrics.AlphaReactivity, 8, 13, DirectionDown},
+	{metrics.AlphaRatio, 8, 13, DirectionUp},
+	{metrics.ThetaAlphaRatio, 4, 13, DirectionUp},
+	{metrics.AperiodicExponent, 2, 40, DirectionUnknown},
+	{metrics.AperiodicOffset, 2, 40, DirectionUnknown},
+	{metrics.AperiodicR2, 2, 40, DirectionUnknown},
+	{metrics.RelDelta, 1, 30, DirectionUp},
+	{metrics.RelTheta, 1, 30, DirectionUp},
+	{metrics.RelAlpha, 1, 30, DirectionDown},
+	{metrics.RelBeta, 1, 30, DirectionDown},
+	{metrics.SlowingRatio, 1, 30, DirectionUp},
+	{metrics.FrontalPosteriorAlpha, 8, 13, DirectionUnknown},
+	{metrics.DrowsinessIndex, 8, 13, DirectionUnknown},
 }
 
 // MarkerNames returns the marker names of package metrics in a fixed order.

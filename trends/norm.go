@@ -8,6 +8,7 @@ import (
 
 	"gonum.org/v1/gonum/mat"
 	"gonum.org/v1/gonum/optimize"
+	"gonum.org/v1/gonum/stat"
 )
 
 // The clinic's controls as a longitudinal norm: a linear mixed-effects model
@@ -83,10 +84,13 @@ type Estimate struct {
 // N visits, p = 2 fixed effects. Wᵢ⁻¹ and |Wᵢ| come from the 2×2 matrix
 // Mᵢ = I + ΛᵀZᵢᵀZᵢΛ (Woodbury; |Wᵢ| = |Mᵢ|), so a fit needs only each
 // person's ZᵢᵀZᵢ, Zᵢᵀyᵢ and yᵢᵀyᵢ. θ̂ minimises −ℓ_R with gonum's
-// Nelder–Mead and then BFGS (central-difference gradient), from several
-// starts, the best kept. The fixed effects' covariance is σ̂²(Σ XᵢᵀWᵢ⁻¹Xᵢ)⁻¹;
-// their 95 % intervals use t(0.975; persons − 2), the between-person degrees
-// of freedom (conservative against the normal quantile).
+// Nelder–Mead (derivative-free: the likelihood is flat in Λ next to a zero
+// variance, where gradient steps stall), from several starts and on the
+// boundary models, the best kept (fitTheta). Values enter less their mean
+// (β₀ is shifted back), so that r(θ) does not cancel digits. The fixed
+// effects' covariance is σ̂²(Σ XᵢᵀWᵢ⁻¹Xᵢ)⁻¹; their 95 % intervals use
+// t(0.975; persons − 2), the between-person degrees of freedom
+// (conservative against the normal quantile).
 //
 // Known is false, with a Reason in words, below the minimums (NormMinimums)
 // or when the fit fails.
@@ -123,7 +127,8 @@ type ControlNorm struct {
 	// part of ResidualSD that is measurement error within a visit.
 	VisitSE    float64 `json:"visit_se"`
 	HasVisitSE bool    `json:"has_visit_se"`
-	// Boundary names a variance component estimated at (or next to) zero.
+	// Boundary names a variance component estimated at zero, or a
+	// correlation at ±1 (the edge of the parameter space).
 	Boundary string `json:"boundary,omitempty"`
 	// LogLik is the maximised restricted log likelihood ℓ_R(θ̂).
 	LogLik   float64 `json:"reml_loglik"`
@@ -230,6 +235,9 @@ func FitControlNorm(obs []ControlObservation, opt NormOptions) ControlNorm {
 	if minimum.PersonsThree <= 0 {
 		minimum.PersonsThree = def.PersonsThree
 	}
+	// Three persons at the least, whatever the minimums: the fixed
+	// effects' t interval has persons − 2 degrees of freedom.
+	minimum.Persons = max(minimum.Persons, 3)
 	n := ControlNorm{Marker: opt.Marker, Region: opt.Region, State: opt.State, Min: minimum, FittedOn: opt.FittedOn, Method: normMethod}
 	byPerson := map[string][]ControlObservation{}
 	var keys []string
@@ -266,12 +274,19 @@ func FitControlNorm(obs []ControlObservation, opt NormOptions) ControlNorm {
 			n.PersonsThree++
 		}
 	}
-	if n.PersonsTwo < minimum.Persons || n.PersonsThree < minimum.PersonsThree {
+	if n.PersonsTwo < minimum.Persons || n.PersonsThree < minimum.PersonsThree || n.Persons < 3 {
 		n.Reason = fmt.Sprintf("only %d control %s with two or more comparable visits (%d with three or more): a norm needs at least %d with two or more and %d with three or more",
 			n.PersonsTwo, plural(n.PersonsTwo, "person", "persons"), n.PersonsThree, minimum.Persons, minimum.PersonsThree)
 		return n
 	}
 	n.CentreAge /= float64(n.Visits)
+	var mean float64
+	for _, k := range keys {
+		for _, o := range byPerson[k] {
+			mean += o.Value
+		}
+	}
+	mean /= float64(n.Visits)
 	if seAll && n.Visits > 0 {
 		n.HasVisitSE, n.VisitSE = true, math.Sqrt(seSum/float64(n.Visits))
 	}
@@ -279,15 +294,21 @@ func FitControlNorm(obs []ControlObservation, opt NormOptions) ControlNorm {
 	for _, k := range keys {
 		var p personStats
 		for _, o := range byPerson[k] {
-			t := o.AgeYears - n.CentreAge
+			t, y := o.AgeYears-n.CentreAge, o.Value-mean
 			p.n++
 			p.st += t
 			p.stt += t * t
-			p.sy += o.Value
-			p.sty += t * o.Value
-			p.yy += o.Value * o.Value
+			p.sy += y
+			p.sty += t * y
+			p.yy += y * y
 		}
 		st.persons = append(st.persons, p)
+	}
+	if v, _, _, _ := st.eval([]float64{0, 0, 0}); math.IsInf(v, 0) {
+		// At θ = 0 the model is ordinary least squares: no residual there
+		// means the values lie on one line.
+		n.Reason = "the controls' values have no spread about their lines: no norm"
+		return n
 	}
 	theta, ok := fitTheta(&st, byPerson, keys, n.CentreAge)
 	if !ok {
@@ -312,13 +333,16 @@ func FitControlNorm(obs []ControlObservation, opt NormOptions) ControlNorm {
 	}
 	var bound []string
 	if g11 <= boundaryShare*sigma2 {
-		bound = append(bound, "between-person SD of intercepts")
+		bound = append(bound, "between-person SD of intercepts at zero")
 	}
 	if g22 <= boundaryShare*sigma2 {
-		bound = append(bound, "between-person SD of slopes")
+		bound = append(bound, "between-person SD of slopes at zero")
+	}
+	if n.InterceptSD > 0 && n.SlopeSD > 0 && math.Abs(n.Correlation) > 1-1e-6 {
+		bound = append(bound, fmt.Sprintf("correlation of intercepts and slopes at %+.0f", n.Correlation))
 	}
 	if len(bound) > 0 {
-		n.Boundary = strings.Join(bound, " and ") + " estimated at or near zero (boundary of the parameter space)"
+		n.Boundary = strings.Join(bound, "; ") + " (boundary of the parameter space: the controls' data do not separate this component from the visit noise)"
 	}
 
 	// Cov(β̂) = σ̂² (Σ XᵀW⁻¹X)⁻¹ by gonum's Cholesky.
@@ -334,7 +358,7 @@ func FitControlNorm(obs []ControlObservation, opt NormOptions) ControlNorm {
 	}
 	n.DF = n.Persons - 2
 	t := TQuantile975(n.DF)
-	n.Intercept = estimate(beta[0], math.Sqrt(sigma2*inv.At(0, 0)), t)
+	n.Intercept = estimate(mean+beta[0], math.Sqrt(sigma2*inv.At(0, 0)), t)
 	n.PerYear = estimate(beta[1], math.Sqrt(sigma2*inv.At(1, 1)), t)
 	n.Known = true
 	return n
@@ -363,33 +387,51 @@ func distinctAges(obs []ControlObservation) int {
 
 // fitTheta minimises −2ℓ_R over θ from several starts: moment estimates
 // from each person's own least-squares line, the same with no slope
-// variance, and with no intercept variance.
+// variance, and with no intercept variance. With G = σ²ΛΛᵀ the likelihood
+// is flat in Λ's entries next to a zero variance (its derivative there is
+// 0), so an optimiser creeps towards the boundary without reaching it; the
+// boundary models themselves (no slope variance: θ = (λ, 0, 0); no
+// intercept variance: θ = (0, 0, λ); neither: θ = 0) are fitted too, and
+// the θ with the largest ℓ_R of all is kept.
 func fitTheta(st *remlState, byPerson map[string][]ControlObservation, keys []string, centre float64) ([]float64, bool) {
 	f := func(x []float64) float64 {
 		v, _, _, _ := st.eval(x)
 		return v
 	}
-	grad := func(g, x []float64) { centralGradient(g, f, x) }
-	prob := optimize.Problem{Func: f, Grad: grad}
 	var best []float64
 	bestF := math.Inf(1)
-	for _, x0 := range startThetas(byPerson, keys, centre) {
-		x := x0
-		if r, err := optimize.Minimize(prob, x, &optimize.Settings{
-			Converger: &optimize.FunctionConverge{Absolute: 1e-12, Relative: 1e-12, Iterations: 200},
-		}, &optimize.NelderMead{}); err == nil || r != nil {
-			if r != nil && r.F < math.Inf(1) {
-				x = r.X
-			}
-		}
-		if r, _ := optimize.Minimize(prob, x, &optimize.Settings{GradientThreshold: 1e-9}, &optimize.BFGS{}); r != nil && r.F <= f(x) {
-			x = r.X
-		}
+	keep := func(x []float64) {
 		if v := f(x); v < bestF {
 			best, bestF = slices.Clone(x), v
 		}
 	}
+	for _, x0 := range startThetas(byPerson, keys, centre) {
+		keep(minimise(f, x0))
+	}
+	// Boundary models, from the best fit's own values.
+	if best != nil {
+		li := math.Abs(best[0])
+		ls := math.Hypot(best[1], best[2])
+		x := minimise(func(y []float64) float64 { return f([]float64{y[0], 0, 0}) }, []float64{math.Max(li, 0.1)})
+		keep([]float64{x[0], 0, 0})
+		x = minimise(func(y []float64) float64 { return f([]float64{0, 0, y[0]}) }, []float64{math.Max(ls, 0.01)})
+		keep([]float64{0, 0, x[0]})
+	}
+	keep([]float64{0, 0, 0})
 	return best, best != nil && !math.IsInf(bestF, 0)
+}
+
+// minimise runs gonum's Nelder–Mead from x0 until −2ℓ_R changes by less
+// than 1e-11 over 30 iterations, and returns the better of x0 and its end.
+func minimise(f func([]float64) float64, x0 []float64) []float64 {
+	prob := optimize.Problem{Func: f}
+	x := slices.Clone(x0)
+	if r, _ := optimize.Minimize(prob, x, &optimize.Settings{
+		Converger: &optimize.FunctionConverge{Absolute: 1e-11, Relative: 1e-12, Iterations: 30},
+	}, &optimize.NelderMead{}); r != nil && r.F < f(x) {
+		x = r.X
+	}
+	return x
 }
 
 // startThetas are the starting points of the optimiser (θ = Λ entries of
@@ -418,8 +460,11 @@ func startThetas(byPerson map[string][]ControlObservation, keys []string, centre
 	if dfe > 0 && sse > 0 {
 		s2 = sse / float64(dfe)
 	}
-	vi := math.Max(variance(ints), 1e-3*s2) / s2
-	vs := math.Max(variance(slopes), 1e-3*s2) / s2
+	vi, vs := 1e-3, 1e-3
+	if len(ints) >= 2 {
+		vi = math.Max(stat.Variance(ints, nil), 1e-3*s2) / s2
+		vs = math.Max(stat.Variance(slopes, nil), 1e-3*s2) / s2
+	}
 	return [][]float64{
 		{math.Sqrt(vi), 0, math.Sqrt(vs)},
 		{math.Sqrt(vi), 0, 0},
@@ -428,56 +473,13 @@ func startThetas(byPerson map[string][]ControlObservation, keys []string, centre
 	}
 }
 
-// lineFit is the least-squares line y = a + b·t and its residual sum of squares.
+// lineFit is the least-squares line y = a + b·t (gonum
+// stat.LinearRegression) and its residual sum of squares.
 func lineFit(t, y []float64) (a, b, sse float64) {
-	var mt, my float64
-	for i := range t {
-		mt += t[i]
-		my += y[i]
-	}
-	mt /= float64(len(t))
-	my /= float64(len(t))
-	var sxx, sxy float64
-	for i := range t {
-		sxx += (t[i] - mt) * (t[i] - mt)
-		sxy += (t[i] - mt) * (y[i] - my)
-	}
-	b = sxy / sxx
-	a = my - b*mt
+	a, b = stat.LinearRegression(t, y, nil, false)
 	for i := range t {
 		r := y[i] - a - b*t[i]
 		sse += r * r
 	}
 	return a, b, sse
-}
-
-func variance(x []float64) float64 {
-	if len(x) < 2 {
-		return 0
-	}
-	var m float64
-	for _, v := range x {
-		m += v
-	}
-	m /= float64(len(x))
-	var s float64
-	for _, v := range x {
-		s += (v - m) * (v - m)
-	}
-	return s / float64(len(x)-1)
-}
-
-// centralGradient is the central-difference gradient of f at x with step
-// h = 1e-6·max(1, |xₖ|) (truncation error O(h²), common practice).
-func centralGradient(g []float64, f func([]float64) float64, x []float64) {
-	y := slices.Clone(x)
-	for k := range x {
-		h := 1e-6 * math.Max(1, math.Abs(x[k]))
-		y[k] = x[k] + h
-		fp := f(y)
-		y[k] = x[k] - h
-		fm := f(y)
-		y[k] = x[k]
-		g[k] = (fp - fm) / (2 * h)
-	}
 }

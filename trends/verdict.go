@@ -3,8 +3,9 @@ package trends
 import (
 	"fmt"
 	"math"
+	"slices"
 
-	"longwave/metrics"
+	"gonum.org/v1/gonum/stat"
 )
 
 // The patient's own slope against the clinic's control norm.
@@ -26,7 +27,11 @@ const AdvisoryVerdict = "advisory: a comparison with this clinic's control parti
 
 // WorryingDirection is the direction of change of a marker that clinical EEG
 // reads as slowing or loss of reactivity, DirectionUnknown where neither
-// sign is. Source: common practice (EEG slowing moves the posterior dominant
+// sign is (and for a name that is no marker); the table is the markers'
+// own (markerSpans): down for the PDR frequencies and centre of gravity,
+// alpha reactivity and relative alpha and beta power; up for the
+// eyes-open/closed alpha ratio, theta/alpha, relative delta and theta power
+// and the slowing ratio. Source: common practice (EEG slowing moves the posterior dominant
 // rhythm down and power from alpha and beta to delta and theta); alpha
 // reactivity is lower in mild Alzheimer's disease than in normal elderly
 // (Babiloni et al. 2010, REFERENCES.md section 1, abstract). The aperiodic
@@ -34,12 +39,10 @@ const AdvisoryVerdict = "advisory: a comparison with this clinic's control parti
 // it is established as a sign of disease; the asymmetry is signed (left −
 // right), the fit quality and the drowsiness index describe the recording.
 func WorryingDirection(marker string) Direction {
-	switch marker {
-	case metrics.PDRFrequency, metrics.PDRCentroid, metrics.PDRLeft, metrics.PDRRight,
-		metrics.AlphaReactivity, metrics.RelAlpha, metrics.RelBeta:
-		return DirectionDown
-	case metrics.AlphaRatio, metrics.ThetaAlphaRatio, metrics.RelDelta, metrics.RelTheta, metrics.SlowingRatio:
-		return DirectionUp
+	for _, m := range markerSpans {
+		if m.name == marker {
+			return m.worrying
+		}
 	}
 	return DirectionUnknown
 }
@@ -88,8 +91,12 @@ type PatientSlope struct {
 }
 
 // FitPatientSlope fits the patient's slope over comparable visits (any
-// order) with the noise of the control norm when it is Known.
+// order) with the noise of the control norm when it is Known. Visits with a
+// non-finite age or value are left out.
 func FitPatientSlope(visits []PatientVisit, norm ControlNorm) PatientSlope {
+	visits = slices.DeleteFunc(slices.Clone(visits), func(v PatientVisit) bool {
+		return !finiteValue(v.AgeYears) || !finiteValue(v.Value)
+	})
 	p := PatientSlope{N: len(visits)}
 	if p.N < MinVerdictVisits {
 		p.Reason = fmt.Sprintf("%d comparable %s: a verdict needs at least %d", p.N, plural(p.N, "visit", "visits"), MinVerdictVisits)
@@ -119,27 +126,26 @@ func FitPatientSlope(visits []PatientVisit, norm ControlNorm) PatientSlope {
 		}
 		w[j] = 1 / vj
 	}
-	var sw, mt, my float64
+	ages := make([]float64, p.N)
+	values := make([]float64, p.N)
 	for j, v := range visits {
-		sw += w[j]
-		mt += w[j] * v.AgeYears
-		my += w[j] * v.Value
+		ages[j], values[j] = v.AgeYears, v.Value
 	}
-	mt /= sw
-	my /= sw
-	var sxx, sxy float64
-	for j, v := range visits {
-		sxx += w[j] * (v.AgeYears - mt) * (v.AgeYears - mt)
-		sxy += w[j] * (v.AgeYears - mt) * (v.Value - my)
+	mt := stat.Mean(ages, w)
+	var sxx float64
+	for j, t := range ages {
+		sxx += w[j] * (t - mt) * (t - mt)
 	}
 	if !(sxx > 0) || p.LastAge-p.FirstAge < 1/DaysPerYear {
 		p.Reason = "all comparable visits on one date: no slope"
 		return p
 	}
-	p.PerYear = sxy / sxx
+	// Weighted least squares by gonum's stat.LinearRegression.
+	a, b := stat.LinearRegression(ages, values, w, false)
+	p.PerYear = b
 	var q float64
-	for j, v := range visits {
-		r := v.Value - my - p.PerYear*(v.AgeYears-mt)
+	for j, t := range ages {
+		r := values[j] - a - b*t
 		q += w[j] * r * r
 	}
 	p.Phi = q / float64(p.N-2)

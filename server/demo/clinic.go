@@ -257,21 +257,9 @@ func (w person) visit(rng *rand.Rand, v *Visit, years float64) {
 func (p Patient) Spec(v Visit) synth.Spec {
 	s := synth.Default()
 	s.Seed = v.Seed
-	s.Duration = 240
-	s.Periods = []ingest.Period{
-		{State: ingest.EyesClosed, Start: 0, End: 100},
-		{State: ingest.EyesOpen, Start: 100, End: 160},
-		{State: ingest.EyesClosed, Start: 160, End: 220},
-		{State: ingest.EyesOpen, Start: 220, End: 240},
-	}
+	s.Duration, s.Periods = closedThenOpen(0, 100, 160, 220, 240)
 	if p.Group == clinic.ControlGroup {
-		s.Duration = 150
-		s.Periods = []ingest.Period{
-			{State: ingest.EyesClosed, Start: 0, End: 75},
-			{State: ingest.EyesOpen, Start: 75, End: 105},
-			{State: ingest.EyesClosed, Start: 105, End: 135},
-			{State: ingest.EyesOpen, Start: 135, End: 150},
-		}
+		s.Duration, s.Periods = closedThenOpen(0, 75, 105, 135, 150)
 	}
 	s.AlphaHz = v.AlphaHz
 	s.AlphaPower = v.AlphaPower
@@ -316,6 +304,21 @@ func (p Patient) Spec(v Visit) synth.Spec {
 		s.Spelling = synth.SpellEarRef
 	}
 	return s
+}
+
+// closedThenOpen returns the periods between successive bounds (seconds),
+// eyes closed first and then alternating, and the last bound as the
+// recording's duration.
+func closedThenOpen(bounds ...float64) (float64, []ingest.Period) {
+	var out []ingest.Period
+	for i := 1; i < len(bounds); i++ {
+		state := ingest.EyesClosed
+		if i%2 == 0 {
+			state = ingest.EyesOpen
+		}
+		out = append(out, ingest.Period{State: state, Start: bounds[i-1], End: bounds[i]})
+	}
+	return bounds[len(bounds)-1], out
 }
 
 // Options of Build.

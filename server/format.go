@@ -172,6 +172,7 @@ func flagView(f metrics.Flag) web.FlagView {
 }
 
 func flagViews(fs []metrics.Flag) []web.FlagView {
+	fs = groupIntervalFlags(fs)
 	out := make([]web.FlagView, 0, len(fs))
 	for _, f := range fs {
 		out = append(out, flagView(f))

@@ -6,12 +6,14 @@ import (
 	"encoding/hex"
 	"encoding/json"
 	"net/http"
+	"reflect"
 	"strings"
 	"testing"
 
 	"longwave/ingest"
 	"longwave/metrics"
 	"longwave/server/store"
+	"longwave/trends"
 )
 
 // intervalMethod is how the test's intervals say they were made.
@@ -189,5 +191,27 @@ func TestVerdictText(t *testing.T) {
 		if got := verdictText(tt.flags); got != tt.want {
 			t.Errorf("verdictText(%v) = %q, want %q", tt.flags, got, tt.want)
 		}
+	}
+}
+
+func TestGroupIntervalFlags(t *testing.T) {
+	wide := func(key string) metrics.Flag {
+		return metrics.Flag{Rule: trends.RuleIntervalWide, Severity: metrics.NotComparable, Markers: []string{key},
+			Reason: key + " too wide", Source: "design"}
+	}
+	caution := metrics.Flag{Rule: trends.RuleLittleCleanClosed, Severity: metrics.Caution, Reason: "40 s"}
+	drowsy := metrics.Flag{Rule: trends.RuleDrowsy, Severity: metrics.NotComparable, Reason: "drowsy"}
+	one := []metrics.Flag{caution, wide("a/x/closed"), drowsy}
+	if got := groupIntervalFlags(one); !reflect.DeepEqual(got, one) {
+		t.Errorf("one interval flag: %+v, want it unchanged", got)
+	}
+	got := groupIntervalFlags([]metrics.Flag{caution, wide("a/x/closed"), drowsy, wide("b/y/closed"), wide("c/z/open")})
+	if len(got) != 3 || got[0].Rule != caution.Rule || got[1].Rule != trends.RuleIntervalWide || got[2].Rule != drowsy.Rule {
+		t.Fatalf("grouped: %+v", got)
+	}
+	g := got[1]
+	if !reflect.DeepEqual(g.Markers, []string{"a/x/closed", "b/y/closed", "c/z/open"}) || g.Severity != metrics.NotComparable ||
+		g.Reason != "3 markers have an interval too wide to compare across visits: a/x/closed too wide; b/y/closed too wide; c/z/open too wide" {
+		t.Errorf("grouped flag %+v", g)
 	}
 }

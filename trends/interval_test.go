@@ -44,7 +44,7 @@ func flagSummary(flags []metrics.Flag) []string {
 }
 
 // TestEnoughDataByInterval: the limits are those of trends/thresholds.go
-// (PDR 0.3 Hz, theta/alpha 20 % of the value, exponent 0.1, reactivity
+// (PDR 0.45 Hz, theta/alpha 40 % of the value, exponent 0.1, reactivity
 // 0.2); each case sits just inside or just outside one of them.
 func TestEnoughDataByInterval(t *testing.T) {
 	pdrKey, taKey, expKey := pdrM.Key(), taM.Key(), expM.Key()
@@ -66,10 +66,10 @@ func TestEnoughDataByInterval(t *testing.T) {
 		{"narrow intervals, 30 s: caution only", 30,
 			[]metrics.Marker{withCI(pdrM, 9.4, 9.6), withCI(taM, 0.23, 0.27)},
 			[]string{RuleLittleCleanClosed + ":" + caution + ":"}},
-		{"PDR width 0.29 Hz", 180, []metrics.Marker{withCI(pdrM, 9.36, 9.65)}, nil},
-		{"PDR width 0.31 Hz", 180, []metrics.Marker{withCI(pdrM, 9.35, 9.66)}, []string{RuleIntervalWide + ":" + notComp + ":" + pdrKey}},
-		{"theta/alpha 19 % of the value", 180, []metrics.Marker{withCI(taM, 0.226, 0.2735)}, nil},
-		{"theta/alpha 21 % of the value", 180, []metrics.Marker{withCI(taM, 0.224, 0.2765)}, []string{RuleIntervalWide + ":" + notComp + ":" + taKey}},
+		{"PDR width 0.44 Hz", 180, []metrics.Marker{withCI(pdrM, 9.28, 9.72)}, nil},
+		{"PDR width 0.46 Hz", 180, []metrics.Marker{withCI(pdrM, 9.27, 9.73)}, []string{RuleIntervalWide + ":" + notComp + ":" + pdrKey}},
+		{"theta/alpha 39 % of the value", 180, []metrics.Marker{withCI(taM, 0.2015, 0.299)}, nil},
+		{"theta/alpha 41 % of the value", 180, []metrics.Marker{withCI(taM, 0.1985, 0.301)}, []string{RuleIntervalWide + ":" + notComp + ":" + taKey}},
 		{"exponent width 0.12", 180, []metrics.Marker{withCI(expM, 1.24, 1.36)}, []string{RuleIntervalWide + ":" + notComp + ":" + expKey}},
 		{"reactivity width 0.19", 180, []metrics.Marker{withCI(reactM, 0.5, 0.69)}, nil},
 		{"reactivity width 0.25", 180, []metrics.Marker{withCI(reactM, 0.48, 0.73)}, []string{RuleIntervalWide + ":" + notComp + ":" + reactM.Key()}},
@@ -107,7 +107,7 @@ func TestIntervalWideReasonAndScope(t *testing.T) {
 	if !ok {
 		t.Fatalf("no %s flag in %v", RuleIntervalWide, rulesOf(flags))
 	}
-	for _, want := range []string{"posterior dominant rhythm (posterior region, eyes closed)", "95 % interval 9.1 to 9.8 Hz", "0.7 Hz wide", "wider than 0.3 Hz"} {
+	for _, want := range []string{"posterior dominant rhythm (posterior region, eyes closed)", "95 % interval 9.1 to 9.8 Hz", "0.7 Hz wide", "wider than 0.45 Hz"} {
 		if !strings.Contains(f.Reason, want) {
 			t.Errorf("reason %q lacks %q", f.Reason, want)
 		}
@@ -138,7 +138,7 @@ func TestIntervalLimitsCoverEveryMarker(t *testing.T) {
 	var found bool
 	for _, r := range Rules() {
 		if r.Name == RuleIntervalWide {
-			found = strings.Contains(r.Threshold, "posterior dominant rhythm 0.3") && strings.Contains(r.Threshold, "theta/alpha ratio 20 % of the value")
+			found = strings.Contains(r.Threshold, "posterior dominant rhythm 0.45;") && strings.Contains(r.Threshold, "theta/alpha ratio 40 % of the value")
 		}
 	}
 	if !found {

@@ -78,19 +78,31 @@ const MinCleanClosedSeconds = 60.0
 // proportional. Each is chosen against what the marker must resolve between
 // two visits; all are longwave design and provisional until the clinic's
 // own controls give a visit-to-visit SD per marker.
+//
+// For orientation (measured with the v2 bootstrap on the shared eegmmidb
+// pairs S001–S003 and S038 when these limits were set, about 58 s of clean
+// data per state; intervals narrow about as 1/√duration): PDR 0.40–0.60 Hz
+// wide, exponent 0.11–0.24, posterior theta/alpha 28–100 % of its value,
+// alpha reactivity 0.05–0.23. On the synthetic recordings of the server
+// tests (106 s of clean eyes-closed data, 40 s eyes open) posterior
+// theta/alpha is 21–31 % of its value wide and alpha reactivity 0.24–0.28.
+// So about a minute of clean data a state gives alpha reactivity that can be
+// compared and a PDR that cannot; a routine recording of a few minutes
+// brings the PDR, the exponent and theta/alpha inside their limits where
+// the bands stand above the noise.
 
 // MaxIntervalWidthPDR is the widest interval, in Hz, of the posterior
 // dominant rhythm (and of the alpha centre of gravity and the left and right
-// occipital peaks, same unit and same question). Source: longwave design.
-// Reason: half the provisional smallest reliable change of the PDR, 0.632 Hz
-// (1.96 · √2 · SD · √(1 − r) with SD 0.57 Hz and r 0.84, REFERENCES.md
-// section 2; Jacobson & Truax 1991), rounded down. Two visits at the limit
-// have SE ≤ 0.3 / (2 · 1.96) = 0.077 Hz each, so their difference has a 95 %
-// half-width of at most 1.96 · √2 · 0.077 = 0.21 Hz, a third of the reliable
-// change: the visits' own noise cannot by itself make or hide one. The
-// limit is also about one Welch bin (0.25 Hz at 4 s segments), the spacing
-// the peak interpolation refines.
-const MaxIntervalWidthPDR = 0.3
+// occipital peaks, same unit and same question). Source: longwave design, on
+// the reliable change index (REFERENCES.md section 2; Jacobson & Truax
+// 1991). Reason: the index assumes a measurement error of SE = SD · √(1 − r)
+// = 0.57 · √0.16 = 0.228 Hz per visit (provisional SD and r of the PDR). A
+// visit whose own noise is larger than the index assumes would turn that
+// noise into "reliable change"; the limit keeps the visit's own SE at no
+// more than half of it, 0.114 Hz, so that it takes at most a quarter of the
+// error variance the index allows for: width 2 · 1.96 · 0.114 = 0.447 Hz,
+// rounded to 0.45 Hz.
+const MaxIntervalWidthPDR = 0.45
 
 // MaxIntervalWidthAsymmetry is the widest interval, in Hz, of the left minus
 // right occipital peak difference. Source: longwave design, on the steps of
@@ -131,13 +143,19 @@ const MaxIntervalWidthOffset = 0.2
 const MaxIntervalWidthFitR2 = 0.1
 
 // MaxIntervalRelativeWidth is the widest interval of a ratio of band powers
-// (theta/alpha, slowing ratio, frontal/posterior alpha) or a relative band
-// power, as a share of the marker's value: 0.2, about ±10 %. Source: longwave
-// design. Reason: 10 % is the agreement settings v2 holds theta/alpha to
-// between a blink-laden and a blink-free recording of the same signal, the
-// least change longwave treats as material for a ratio; ratios of power
-// change in proportion, so the limit is relative.
-const MaxIntervalRelativeWidth = 0.2
+// (theta/alpha, slowing ratio, frontal/posterior alpha; the eyes-open over
+// eyes-closed ratio goes with alpha reactivity) or a relative band power, as
+// a share of the marker's value: 0.4, about ±20 %. Source: longwave design,
+// on the reasoning of MaxIntervalWidthPDR: the visit's own SE at most half
+// the measurement error SD · √(1 − r) that test–retest reliability implies.
+// With
+// r = 0.84 for broad-band spectral features at 12–16 weeks (Salinsky et al.
+// 1991, REFERENCES.md section 2, abstract) and a between-person SD of about
+// half the mean for ratios and shares of band power (from memory,
+// unverified), the error is 0.5 · √0.16 = 0.2 of the value, half of it 0.1,
+// and the width 2 · 1.96 · 0.1 = 0.39 of the value, rounded to 0.4. Ratios of
+// power change in proportion, so the limit is relative.
+const MaxIntervalRelativeWidth = 0.4
 
 // MaxIntervalWidthDrowsiness is the widest interval of the drowsiness index
 // (a share of epochs): the whole span 0 to MaxDrowsiness that the drowsy

@@ -132,6 +132,10 @@ func printOutcome(w io.Writer, req intake.Request, out intake.Outcome) {
 		switch {
 		case !ok:
 			continue
+		case m.Computable && m.Uncertainty != nil:
+			u := m.Uncertainty
+			fmt.Fprintf(w, "  %-34s %8.3f%s  (%g %% interval %.3f to %.3f)\n", mm.label, m.Value, unitSuffix(m.Unit),
+				100*u.Level, u.Low, u.High)
 		case m.Computable:
 			fmt.Fprintf(w, "  %-34s %8.3f%s\n", mm.label, m.Value, unitSuffix(m.Unit))
 		default:
@@ -141,8 +145,18 @@ func printOutcome(w io.Writer, req intake.Request, out intake.Outcome) {
 	if len(out.Flags) == 0 {
 		fmt.Fprintln(w, "  no quality flags")
 	}
+	// The interval rule flags each marker on its own: one line names them all.
+	var wide []string
 	for _, f := range out.Flags {
+		if f.Rule == trends.RuleIntervalWide {
+			wide = append(wide, f.Markers...)
+			continue
+		}
 		fmt.Fprintf(w, "  flag %s (%s): %s\n", f.Rule, strings.ReplaceAll(string(f.Severity), "_", " "), f.Reason)
+	}
+	if len(wide) > 0 {
+		fmt.Fprintf(w, "  flag %s (not comparable): %d markers with an interval too wide to compare across visits: %s\n",
+			trends.RuleIntervalWide, len(wide), strings.Join(wide, ", "))
 	}
 }
 

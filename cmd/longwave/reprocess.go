@@ -5,7 +5,6 @@ import (
 	"fmt"
 	"io"
 	"strconv"
-	"strings"
 	"text/tabwriter"
 	"time"
 
@@ -23,7 +22,7 @@ markers moved, became or stopped being computable, gained an interval), then
 one line per marker series that moved anywhere: in how many visits it moved,
 the median value before → after and the median change (over visits where it
 was computable both times), the largest change and its visit, visits where it
-became (+) or stopped being (−) computable, and the intervals it gained with
+became (+) or stopped being (-) computable, and the intervals it gained with
 their median width. --per-visit adds every moved marker under its visit.
 Courses that still mix settings versions keep flagging the visits made by
 other settings as not comparable.
@@ -106,27 +105,27 @@ func writeReprocessReport(w io.Writer, rep intake.ReprocessReport, perVisit bool
 		fmt.Fprintf(w, "no marker moved in any of the %d visits\n", len(rep.Visits))
 		return
 	}
-	fmt.Fprintf(w, "per marker, old → new over the %d visits (medians over visits computable both times; change = new − old):\n", len(rep.Visits))
+	fmt.Fprintf(w, "per marker, old → new over the %d visits (medians over visits computable both times; change = new - old):\n", len(rep.Visits))
 	tw := tabwriter.NewWriter(w, 0, 0, 2, ' ', 0)
 	fmt.Fprintln(tw, "  marker\tunit\tmoved\told → new\tchange\tlargest change\tcomputable\tintervals")
 	for _, s := range sum {
-		oldNew, change, largest := "–", "–", "–"
+		oldNew, change, largest := "-", "-", "-"
 		if s.Both > 0 {
 			oldNew = g4(s.MedianOld) + " → " + g4(s.MedianNew)
 			change = signed(s.MedianChange)
 			largest = signed(s.Largest) + " (" + s.LargestAt + ")"
 		}
-		intervals := "–"
+		intervals := "-"
 		if s.GainedInterval > 0 || s.LostInterval > 0 {
-			intervals = "+" + strconv.Itoa(s.GainedInterval) + " −" + strconv.Itoa(s.LostInterval)
+			intervals = "+" + strconv.Itoa(s.GainedInterval) + " -" + strconv.Itoa(s.LostInterval)
 			if s.MedianWidth > 0 {
 				intervals += ", median width " + g4(s.MedianWidth)
-				if u := unitText(s.Unit); u != "–" {
+				if u := unitText(s.Unit); u != "-" {
 					intervals += " " + u
 				}
 			}
 		}
-		fmt.Fprintf(tw, "  %s\t%s\t%d/%d\t%s\t%s\t%s\t+%d −%d\t%s\n", s.Key, unitText(s.Unit), s.Changed, len(rep.Visits),
+		fmt.Fprintf(tw, "  %s\t%s\t%d/%d\t%s\t%s\t%s\t+%d -%d\t%s\n", s.Key, unitText(s.Unit), s.Changed, len(rep.Visits),
 			oldNew, change, largest, s.BecameComputable, s.LostComputable, intervals)
 	}
 	tw.Flush()
@@ -144,18 +143,18 @@ func markerText(v float64, computable bool, reason string, u *metrics.Uncertaint
 
 func g4(v float64) string { return strconv.FormatFloat(v, 'g', 4, 64) }
 
-// signed writes a change with its sign (+0.05, −0.31).
+// signed writes a change with its sign (+0.05, -0.31). The report keeps
+// ASCII signs throughout so that its figures paste into a spreadsheet.
 func signed(v float64) string {
-	s := g4(v)
 	if v > 0 {
-		return "+" + s
+		return "+" + g4(v)
 	}
-	return strings.Replace(s, "-", "−", 1)
+	return g4(v)
 }
 
 func unitText(u string) string {
 	if u == "" || u == metrics.UnitOne || u == metrics.UnitRatio || u == metrics.UnitShare {
-		return "–"
+		return "-"
 	}
 	return u
 }

@@ -135,11 +135,11 @@ func TestReprocessReportText(t *testing.T) {
 			rows[f[0]] = f
 		}
 	}
-	// pdr: 9.5, 9.6 → 9.4, 9.2: medians 9.55 → 9.3, change −0.25, largest
-	// −0.4 at visit 2; theta/alpha computable both times at visit 1 only.
+	// pdr: 9.5, 9.6 → 9.4, 9.2: medians 9.55 → 9.3, change -0.25, largest
+	// -0.4 at visit 2; theta/alpha computable both times at visit 1 only.
 	wantRows := map[string]string{
-		pdr: "Hz 2/2 9.55 → 9.3 −0.25 −0.4 (A 2023-01-02, visit 2) +0 −0 +2 −0, median width 0.2 Hz",
-		ta:  "– 2/2 0.3 → 0.33 +0.03 +0.03 (A 2022-01-03, visit 1) +0 −1 –",
+		pdr: "Hz 2/2 9.55 → 9.3 -0.25 -0.4 (A 2023-01-02, visit 2) +0 -0 +2 -0, median width 0.2 Hz",
+		ta:  "- 2/2 0.3 → 0.33 +0.03 +0.03 (A 2022-01-03, visit 1) +0 -1 -",
 	}
 	for k, w := range wantRows {
 		if got := strings.Join(rows[k][1:], " "); got != w {

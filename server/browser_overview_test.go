@@ -99,6 +99,11 @@ func checkOverview(t *testing.T, ctx context.Context, shot func(string)) {
 	if o.Groups < 4 || o.Open != 0 || o.Undrawn == 0 {
 		t.Errorf("%d groups, %d open, %d charts undrawn; want 4 or more groups, closed, their charts not yet drawn", o.Groups, o.Open, o.Undrawn)
 	}
+	noVerdict, err := chromedp.Run(ctx, chromedp.Evaluate[string](`(() => { const el = document.getElementById('no-verdict');
+		return el && el.getBoundingClientRect().bottom <= window.innerHeight ? el.textContent : ''; })()`))
+	if err != nil || !strings.Contains(noVerdict, "no control model") {
+		t.Errorf("overview says %q (%v), want once, in view, why no marker has a verdict (the fixture has no controls)", noVerdict, err)
+	}
 	shot("top-course-overview")
 	checkWordsOnScreen(t, ctx, "course overview")
 

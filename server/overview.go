@@ -96,6 +96,7 @@ func courseBody(c trends.Course, displays map[int64]metrics.Display, canAdd bool
 		card.Verdict, card.Known, card.Concern, card.Lines = headlineWords(sr)
 		page.Headline = append(page.Headline, card)
 	}
+	page.NoVerdict = sharedNoVerdict(page.Headline)
 	for _, v := range c.Visits {
 		page.Strip = append(page.Strip, visitChip(v))
 		page.Visits = append(page.Visits, web.VisitRow{
@@ -140,6 +141,41 @@ func courseBody(c trends.Course, displays map[int64]metrics.Display, canAdd bool
 	}
 	page.Notes = noteRepeats(page)
 	return page
+}
+
+// noVerdictLead starts a headline line that says why there is no verdict.
+const noVerdictLead = "No verdict against the controls: "
+
+// sharedNoVerdict says once, under the overview, why none of the headline
+// markers has a verdict when they all lack one for the same reason, and
+// takes that line out of each card; "" otherwise.
+func sharedNoVerdict(cards []web.HeadlineCard) string {
+	why := ""
+	for _, c := range cards {
+		found := ""
+		for _, l := range c.Lines {
+			if strings.HasPrefix(l, noVerdictLead) {
+				found = strings.TrimPrefix(l, noVerdictLead)
+			}
+		}
+		if found == "" || (why != "" && found != why) {
+			return ""
+		}
+		why = found
+	}
+	if why == "" || len(cards) < 2 {
+		return ""
+	}
+	for i := range cards {
+		var keep []string
+		for _, l := range cards[i].Lines {
+			if !strings.HasPrefix(l, noVerdictLead) {
+				keep = append(keep, l)
+			}
+		}
+		cards[i].Lines = keep
+	}
+	return "No verdict against the clinic's controls for these markers: " + why + "."
 }
 
 // findSeries returns the series of a marker among those picked.
@@ -197,7 +233,7 @@ func headlineWords(sr trends.Series) (string, bool, bool, []string) {
 		if why == "" {
 			why = strings.TrimPrefix(v.Text, "no verdict: ")
 		}
-		lines = append(lines, "No verdict against the controls: "+peopleText(why))
+		lines = append(lines, noVerdictLead+peopleText(why))
 	}
 	if ch.Points > 0 {
 		lines = append(lines, "Latest "+withUnit(sig(ch.LatestValue), unit)+" on "+ch.LatestDate+"; "+
@@ -608,7 +644,7 @@ func noteRepeats(page *web.CourseBody) []web.Note {
 // ": " of an overview line ("No verdict against the controls: …"), else
 // the whole text.
 func noteText(s string) string {
-	for _, lead := range []string{"No verdict against the controls: ", "No verdict: ", "Slope: "} {
+	for _, lead := range []string{noVerdictLead, "No verdict: ", "Slope: "} {
 		if strings.HasPrefix(s, lead) {
 			return strings.TrimPrefix(s, lead)
 		}

@@ -178,12 +178,15 @@ type CourseBody struct {
 	AddURL     string
 	SummaryURL string
 	Headline   []HeadlineCard
-	Strip      []VisitChip
-	NextDue    string
-	Overdue    bool
-	Overlay    *OverlayBox
-	Groups     []ChartGroup
-	Visits     []VisitRow
+	// NoVerdict says once why no headline marker has a verdict ("" when
+	// some have one, or the reasons differ).
+	NoVerdict string
+	Strip     []VisitChip
+	NextDue   string
+	Overdue   bool
+	Overlay   *OverlayBox
+	Groups    []ChartGroup
+	Visits    []VisitRow
 	// Notes are the explanations that would repeat under several charts,
 	// each shown once; the charts say "see note N".
 	Notes     []Note

@@ -542,6 +542,9 @@ const minNoteLength = 30
 // once per page).
 func noteRepeats(page *web.CourseBody) []web.Note {
 	var fields []*string
+	// Advisories repeat word for word under every norm: said once in the
+	// notes, they leave nothing behind under the charts.
+	quiet := map[*string]bool{}
 	addChart := func(ch *web.CourseChart) {
 		for i := range ch.Figures {
 			fields = append(fields, &ch.Figures[i].Value)
@@ -549,6 +552,7 @@ func noteRepeats(page *web.CourseBody) []web.Note {
 		fields = append(fields, &ch.Reference, &ch.Caption)
 		if n := ch.Norm; n != nil {
 			fields = append(fields, &n.Note, &n.Advisory) // the basis stays: a short fact of each norm
+			quiet[&n.Advisory] = true
 			if !n.Known {
 				fields = append(fields, &n.Verdict)
 			}
@@ -621,6 +625,10 @@ func noteRepeats(page *web.CourseBody) []web.Note {
 			n = len(notes) + 1
 			number[t] = n
 			notes = append(notes, web.Note{N: n, Text: sentence(t)})
+		}
+		if quiet[f] {
+			*f = ""
+			continue
 		}
 		*f = strings.TrimSuffix(*f, t) + "see note " + strconv.Itoa(n)
 	}

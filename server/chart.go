@@ -274,10 +274,7 @@ func noBandReason(sr trends.Series) string {
 // interval, change from baseline, reliable change, expected change for age
 // and direction.
 func changeFigures(c trends.Change, unit string) []web.Pair {
-	perYear := unit + "/y"
-	if unit == "" {
-		perYear = "per year"
-	}
+	perYear := perYearUnit(unit)
 	out := []web.Pair{{Label: "Comparable visits", Value: strconv.Itoa(c.Points)}}
 	if c.Slope.Known {
 		out = append(out,

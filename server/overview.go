@@ -206,10 +206,7 @@ func nextDueText(c trends.Course) (string, bool) {
 // and its interval, and why there is no verdict.
 func headlineWords(sr trends.Series) (string, bool, bool, []string) {
 	unit := displayUnit(sr.Unit)
-	perYear := unit + "/y"
-	if unit == "" {
-		perYear = "per year"
-	}
+	perYear := perYearUnit(unit)
 	ch := sr.Change
 	v := ch.Verdict
 	var lines []string
@@ -561,35 +558,28 @@ func noteRepeats(page *web.CourseBody) []web.Note {
 			}
 		}
 	}
+	// Every chart of the page, the overview's first.
+	var all []*web.CourseChart
 	for i := range page.Headline {
 		h := &page.Headline[i]
 		for j := range h.Lines {
 			fields = append(fields, &h.Lines[j])
 		}
-		addChart(&h.Chart)
+		all = append(all, &h.Chart)
 	}
 	for i := range page.Groups {
 		for j := range page.Groups[i].Charts {
-			addChart(&page.Groups[i].Charts[j])
+			all = append(all, &page.Groups[i].Charts[j])
 		}
 	}
 	// A published ageing note repeats as a whole (under every alpha
 	// marker): text, figure and source go to one note together.
-	type litRef struct{ v *web.LiteratureView }
-	var lits []litRef
-	for i := range page.Headline {
-		if n := page.Headline[i].Chart.Norm; n != nil {
-			for j := range n.Literature {
-				lits = append(lits, litRef{&n.Literature[j]})
-			}
-		}
-	}
-	for i := range page.Groups {
-		for j := range page.Groups[i].Charts {
-			if n := page.Groups[i].Charts[j].Norm; n != nil {
-				for k := range n.Literature {
-					lits = append(lits, litRef{&n.Literature[k]})
-				}
+	var lits []*web.LiteratureView
+	for _, ch := range all {
+		addChart(ch)
+		if n := ch.Norm; n != nil {
+			for k := range n.Literature {
+				lits = append(lits, &n.Literature[k])
 			}
 		}
 	}
@@ -602,7 +592,7 @@ func noteRepeats(page *web.CourseBody) []web.Note {
 	}
 	litCount := map[string]int{}
 	for _, l := range lits {
-		litCount[litText(l.v)]++
+		litCount[litText(l)]++
 	}
 	// A line of the overview such as "No verdict against the controls:
 	// <reason>" repeats by its reason: the part after the first ": " is
@@ -615,17 +605,21 @@ func noteRepeats(page *web.CourseBody) []web.Note {
 	}
 	var notes []web.Note
 	number := map[string]int{}
-	for _, f := range fields {
-		t := noteText(*f)
-		if count[t] < 2 {
-			continue
-		}
+	noteFor := func(t string) int {
 		n, ok := number[t]
 		if !ok {
 			n = len(notes) + 1
 			number[t] = n
 			notes = append(notes, web.Note{N: n, Text: sentence(t)})
 		}
+		return n
+	}
+	for _, f := range fields {
+		t := noteText(*f)
+		if count[t] < 2 {
+			continue
+		}
+		n := noteFor(t)
 		if quiet[f] {
 			*f = ""
 			continue
@@ -633,17 +627,11 @@ func noteRepeats(page *web.CourseBody) []web.Note {
 		*f = strings.TrimSuffix(*f, t) + "see note " + strconv.Itoa(n)
 	}
 	for _, l := range lits {
-		t := litText(l.v)
+		t := litText(l)
 		if litCount[t] < 2 {
 			continue
 		}
-		n, ok := number[t]
-		if !ok {
-			n = len(notes) + 1
-			number[t] = n
-			notes = append(notes, web.Note{N: n, Text: t})
-		}
-		*l.v = web.LiteratureView{Text: "See note " + strconv.Itoa(n)}
+		*l = web.LiteratureView{Text: "See note " + strconv.Itoa(noteFor(t))}
 	}
 	return notes
 }

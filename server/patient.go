@@ -25,13 +25,7 @@ func (s *Server) patientsPage(w http.ResponseWriter, r *http.Request) {
 		page.AddURL = addURL("")
 	}
 	for _, p := range list {
-		born := ""
-		switch {
-		case p.BirthDate != "":
-			born = p.BirthDate
-		case p.BirthYear != 0:
-			born = strconv.Itoa(p.BirthYear)
-		}
+		born := bornText(p.BirthDate, p.BirthYear, "")
 		last := p.LastVisit
 		if last == "" {
 			last = "none"
@@ -169,13 +163,7 @@ func (s *Server) coursePage(w http.ResponseWriter, r *http.Request) {
 
 func coursefacts(c trends.Course) []web.Pair {
 	p := c.Patient
-	born := "not given"
-	switch {
-	case p.BirthDate != "":
-		born = p.BirthDate
-	case p.BirthYear != 0:
-		born = strconv.Itoa(p.BirthYear)
-	}
+	born := bornText(p.BirthDate, p.BirthYear, "not given")
 	due := c.NextDue
 	if due == "" {
 		due = "no visit yet"

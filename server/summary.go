@@ -51,13 +51,7 @@ func summaryView(c trends.Course, displays map[int64]metrics.Display, now time.T
 			comparable++
 		}
 	}
-	born := "not given"
-	switch {
-	case p.BirthDate != "":
-		born = p.BirthDate
-	case p.BirthYear != 0:
-		born = strconv.Itoa(p.BirthYear)
-	}
+	born := bornText(p.BirthDate, p.BirthYear, "not given")
 	span := "no visit yet"
 	if n := len(c.Visits); n > 0 {
 		span = c.Visits[0].Date + " to " + c.Visits[n-1].Date
@@ -99,10 +93,7 @@ func summaryView(c trends.Course, displays map[int64]metrics.Display, now time.T
 		}
 		verdict, known, concern, _ := headlineWords(sr)
 		row.Concern = concern
-		perYear := unit + "/y"
-		if unit == "" {
-			perYear = "per year"
-		}
+		perYear := perYearUnit(unit)
 		if ch.Slope.Known {
 			row.Slope = sig(ch.Slope.PerYear) + " " + perYear + " (95 % " + sig(ch.Slope.CILow) + " to " + sig(ch.Slope.CIHigh) + ")"
 		} else {

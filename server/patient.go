@@ -96,6 +96,20 @@ func (s *Server) course(r *http.Request, code string) (trends.Course, error) {
 	}), nil
 }
 
+// auditedCourse reads the {code} of the path, builds that patient's
+// course and audits the view, naming how it was read ("api", "summary").
+func (s *Server) auditedCourse(r *http.Request, how string) (trends.Course, error) {
+	code, err := patientCode(r)
+	if err != nil {
+		return trends.Course{}, err
+	}
+	c, err := s.course(r, code)
+	if err != nil {
+		return c, err
+	}
+	return c, s.audit(r, store.AuditPatientView, code+" ("+how+")")
+}
+
 // visitFlags returns a visit's flags as its patient's course sees them:
 // stored flags, the settings check and the comparison with the previous
 // visit.

@@ -7,7 +7,6 @@ import (
 	"time"
 
 	"longwave/metrics"
-	"longwave/server/store"
 	"longwave/trends"
 	"longwave/web"
 )
@@ -18,12 +17,7 @@ import (
 // advisory and the settings version, laid out for an A4 page (the print
 // rules of longwave.css). Each view is audited as a patient view.
 func (s *Server) summaryPage(w http.ResponseWriter, r *http.Request) {
-	code, err := patientCode(r)
-	if err != nil {
-		s.fail(w, r, err)
-		return
-	}
-	c, err := s.course(r, code)
+	c, err := s.auditedCourse(r, "summary")
 	if err != nil {
 		s.fail(w, r, err)
 		return
@@ -33,12 +27,8 @@ func (s *Server) summaryPage(w http.ResponseWriter, r *http.Request) {
 		s.fail(w, r, err)
 		return
 	}
-	if err := s.audit(r, store.AuditPatientView, code+" (summary)"); err != nil {
-		s.fail(w, r, err)
-		return
-	}
 	page := summaryView(c, displays, s.now())
-	page.Frame = s.frame(r, "Summary "+code, "")
+	page.Frame = s.frame(r, "Summary "+c.Patient.Code, "")
 	s.render(w, r, http.StatusOK, page)
 }
 

@@ -27,6 +27,7 @@ var ruleWords = map[string]string{
 	trends.RuleOccipitalMissing:    "O1 or O2 missing or bad",
 	trends.RuleFewGoodPositions:    "too few good electrode positions",
 	trends.RuleLittleCleanClosed:   "too little clean eyes-closed data",
+	trends.RuleIntervalWide:        "the value's own interval too wide to compare",
 	trends.RuleNoEyesOpen:          "no clean eyes-open data",
 	trends.RuleEyeStateUnknown:     "eye state not known",
 	trends.RuleDrowsy:              "drowsy during the recording",

@@ -9,7 +9,7 @@ import (
 
 	"longwave/ingest"
 	"longwave/metrics"
-	"longwave/server/store"
+	"longwave/metrics/clinic"
 )
 
 // withCI returns m with a 95 % interval [lo, hi].
@@ -150,12 +150,12 @@ func TestIntervalLimitsCoverEveryMarker(t *testing.T) {
 // interval (none for a visit without), and a marker whose interval is too
 // wide is apart for that series only.
 func TestCourseCarriesIntervals(t *testing.T) {
-	v := []store.VisitRecord{visitRec(21, "2024-02-01", 70.1, 9.6), visitRec(22, "2025-02-03", 71.1, 9.4)}
+	v := []clinic.VisitRecord{visitRec(21, "2024-02-01", 70.1, 9.6), visitRec(22, "2025-02-03", 71.1, 9.4)}
 	m := v[1].Markers
 	m[0] = withCI(m[0], 9.0, 9.9)   // PDR: 0.9 Hz wide, too wide
 	m[1] = withCI(m[1], 0.48, 0.52) // theta/alpha: 8 % of 0.5
 	v[1].Flags = CheckVisit(VisitQuality{Conditions: v[1].Conditions, Quality: v[1].Quality, Markers: m})
-	c := BuildCourse(store.Patient{ID: 1, Code: "LH-0522", BirthYear: 1954}, v, CourseOptions{
+	c := BuildCourse(clinic.Patient{ID: 1, Code: "LH-0522", BirthYear: 1954}, v, CourseOptions{
 		SettingsVersion: testVersion, SettingsHash: testHash, Today: time.Date(2025, 6, 1, 0, 0, 0, 0, time.UTC)})
 	byKey := map[string]Series{}
 	for _, s := range c.Series {

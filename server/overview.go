@@ -406,8 +406,8 @@ func spectraOverlay(c trends.Course, displays map[int64]metrics.Display, compact
 	grid := opts.Grid{Left: "12", Right: "170", Top: "30", Bottom: "8", ContainLabel: opts.Bool(true)}
 	legend := opts.Legend{Show: opts.Bool(true), Type: "scroll", Orient: "vertical", Right: "4", Top: "30", Selected: selected}
 	if compact {
-		grid = opts.Grid{Left: "8", Right: "36", Top: "30", Bottom: "4", ContainLabel: opts.Bool(true)}
-		legend = opts.Legend{Show: opts.Bool(true), Top: "0", Left: "center", Selected: selected}
+		grid = opts.Grid{Left: "8", Right: "36", Top: "28", Bottom: "46", ContainLabel: opts.Bool(true)}
+		legend = opts.Legend{Show: opts.Bool(true), Bottom: "0", Left: "center", Selected: selected}
 	}
 	c2.SetGlobalOptions(
 		charts.WithGridOpts(grid),

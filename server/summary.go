@@ -76,24 +76,32 @@ func summaryView(c trends.Course, displays map[int64]metrics.Display, now time.T
 		ch := sr.Change
 		row.Where = regionName(sr.Region) + seriesState(sr.State)
 		if ch.Points > 0 {
-			row.Latest = withUnit(sig(ch.LatestValue), unit) + " (" + ch.LatestDate + ")"
-			row.First = withUnit(sig(ch.BaselineValue), unit) + " (" + ch.BaselineDate + ")"
+			row.Values = sig(ch.BaselineValue) + " → " + withUnit(sig(ch.LatestValue), unit)
+			row.Dates = ch.BaselineDate + " → " + ch.LatestDate
 		} else {
-			row.Latest, row.First = "–", "–"
+			row.Values = "–"
 		}
 		verdict, known, concern, _ := headlineWords(sr)
 		row.Concern = concern
 		perYear := perYearUnit(unit)
-		if ch.Slope.Known {
-			row.Slope = sig(ch.Slope.PerYear) + " " + perYear + " (95 % " + sig(ch.Slope.CILow) + " to " + sig(ch.Slope.CIHigh) + ")"
+		slope := ch.Slope
+		if v := ch.Verdict; known && v.Patient.Known {
+			// The slope the verdict judged (weighted by each visit's noise),
+			// as the course's overview shows it.
+			slope = trends.Slope{Known: true, PerYear: v.Patient.PerYear, CILow: v.Patient.CILow, CIHigh: v.Patient.CIHigh}
+		}
+		if slope.Known {
+			row.Slope = sig(slope.PerYear) + " " + perYear
+			row.Interval = "95 % " + sig(slope.CILow) + " to " + sig(slope.CIHigh)
 		} else {
-			row.Slope = "not yet (" + strconv.Itoa(ch.Points) + " comparable)"
+			row.Slope = "not yet"
+			row.Interval = strconv.Itoa(ch.Points) + " comparable " + plural(ch.Points, "visit", "visits")
 		}
 		if known {
 			row.Verdict = verdict
 			row.Basis = ch.Verdict.Basis
 			if ch.Expected.Known {
-				row.Basis = "controls " + sig(ch.Expected.PerYear) + " " + perYear + "; a control's slope lies in " +
+				row.Basis = "controls " + sig(ch.Expected.PerYear) + " " + perYear + ", range " +
 					sig(ch.Verdict.ControlRangeLow) + " to " + sig(ch.Verdict.ControlRangeHigh)
 			}
 		} else {

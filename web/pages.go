@@ -460,8 +460,13 @@ func (*SummaryPage) template() string { return "summary.html" }
 
 // SummaryRow is one headline marker of the summary.
 type SummaryRow struct {
-	Marker, Where, First, Latest, Slope, Verdict, Basis string
-	Concern                                             bool
+	Marker, Where string
+	// Values are the first and latest comparable values ("9.47 → 8.01 Hz")
+	// and Dates their dates.
+	Values, Dates   string
+	Slope, Interval string
+	Verdict, Basis  string
+	Concern         bool
 }
 
 // SummaryFlag is one flag of a visit in words.

@@ -73,7 +73,7 @@ func samplePages(t *testing.T, tpl *Templates) map[string]Page {
 		"users":   &UsersPage{Frame: f, Users: []UserRow{{Name: hostile, Role: "admin"}}, Roles: []string{"admin"}, Error: hostile, Audit: []AuditRow{{User: hostile, Subject: hostile}}},
 		"error":   &ErrorPage{Frame: f, Status: 404, Message: hostile},
 		"summary": &SummaryPage{Frame: f, Code: hostile, CourseURL: "/patients/x", Printed: "2026-12-03", Facts: []Pair{{hostile, hostile}},
-			Rows:     []SummaryRow{{Marker: hostile, Where: hostile, First: hostile, Latest: hostile, Slope: hostile, Verdict: hostile, Basis: hostile}},
+			Rows:     []SummaryRow{{Marker: hostile, Where: hostile, Values: hostile, Dates: hostile, Slope: hostile, Interval: hostile, Verdict: hostile, Basis: hostile}},
 			Overlay:  &OverlayBox{Key: "m0", Apart: 2, Peaks: []Pair{{hostile, hostile}}},
 			Flags:    []SummaryFlag{{Date: hostile, Severity: hostile, SeverityKey: "caution", Text: hostile, Markers: hostile}},
 			Settings: hostile, Basis: hostile, Advisory: hostile, Verdicts: hostile, ChartData: chart},

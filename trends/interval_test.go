@@ -112,6 +112,11 @@ func TestIntervalWideReasonAndScope(t *testing.T) {
 			t.Errorf("reason %q lacks %q", f.Reason, want)
 		}
 	}
+	// A relative limit: theta/alpha 0.25, interval 0.18 to 0.32 (56 % of it).
+	rel, ok := hasRule(CheckVisit(VisitQuality{Conditions: goodConditions(), Quality: q, Markers: []metrics.Marker{withCI(taM, 0.18, 0.32)}}), RuleIntervalWide)
+	if want := "theta/alpha ratio (posterior region, eyes closed): 95 % interval 0.18 to 0.32 is 0.14 wide, 56 % of the value 0.25; wider than 40 % of the value"; !ok || !strings.HasPrefix(rel.Reason, want) {
+		t.Errorf("relative reason %q, want it to start %q", rel.Reason, want)
+	}
 	// The flag concerns that series only.
 	if !FlagAffects(f, m) || FlagAffects(f, taM) || FlagAffects(f, marker(metrics.PDRFrequency, metrics.RegionPosterior, ingest.EyesOpen, 9.9, "Hz")) {
 		t.Errorf("flag markers %v: must concern %s alone", f.Markers, m.Key())

@@ -382,7 +382,7 @@ func tooWide(m metrics.Marker, lim IntervalLimit) (string, bool) {
 		}
 		share := "the value is 0"
 		if m.Value != 0 {
-			share = num(100*width/math.Abs(m.Value)) + " % of the value " + sig3(m.Value)
+			share = strconv.FormatFloat(100*width/math.Abs(m.Value), 'f', 0, 64) + " % of the value " + sig3(m.Value)
 		}
 		return fmt.Sprintf("%s: %s interval %s to %s is %s wide, %s; wider than %s %% of the value, too wide to compare across visits",
 			where, level, sig3(u.Low), sig3(u.High), sig3(width), share, num(100*lim.Width)), true

@@ -46,17 +46,8 @@ func (s *Server) apiPatients(w http.ResponseWriter, r *http.Request) {
 
 // apiCourse answers GET /api/v1/patients/{code}/course with trends.Course.
 func (s *Server) apiCourse(w http.ResponseWriter, r *http.Request) {
-	code, err := patientCode(r)
+	c, err := s.auditedCourse(r, "api")
 	if err != nil {
-		s.fail(w, r, err)
-		return
-	}
-	c, err := s.course(r, code)
-	if err != nil {
-		s.fail(w, r, err)
-		return
-	}
-	if err := s.audit(r, store.AuditPatientView, code+" (api)"); err != nil {
 		s.fail(w, r, err)
 		return
 	}

@@ -17,8 +17,9 @@ import (
 // filled points on a line, the others as hollow points without a line (the
 // reason in the tooltip), and the literature reference band of each age
 // band shaded across the dates it applies to. It returns the option and the
-// chart's box with its change figures and the band's source.
-func courseChart(sr trends.Series) (web.Option, web.CourseChart) {
+// chart's box with its change figures and the band's source. A compact
+// chart (the overview's small ones) has no legend and a tighter frame.
+func courseChart(sr trends.Series, compact bool) (web.Option, web.CourseChart) {
 	unit := displayUnit(sr.Unit)
 	var on, apart []web.Point
 	notComputable := 0
@@ -70,11 +71,20 @@ func courseChart(sr trends.Series) (web.Option, web.CourseChart) {
 		xAxis.Min, xAxis.Max = x0, x1
 		yAxis.Min, yAxis.Max, yAxis.Scale = y0, y1, nil
 	}
+	grid := opts.Grid{Left: "12", Right: "24", Top: "34", Bottom: "8", ContainLabel: opts.Bool(true)}
+	legend := opts.Legend{Show: opts.Bool(true), Top: "2", Left: "center"}
+	if compact {
+		grid = opts.Grid{Left: "4", Right: "14", Top: "22", Bottom: "2", ContainLabel: opts.Bool(true)}
+		legend = opts.Legend{Show: opts.Bool(false)}
+		xAxis.SplitNumber = 3
+		yAxis.SplitNumber = 3
+		yAxis.Name = "" // the unit is in the card's figures
+	}
 	c := web.NewChart()
 	c.SetGlobalOptions(
-		charts.WithGridOpts(opts.Grid{Left: "12", Right: "24", Top: "34", Bottom: "8", ContainLabel: opts.Bool(true)}),
+		charts.WithGridOpts(grid),
 		charts.WithTooltipOpts(opts.Tooltip{Trigger: "item"}),
-		charts.WithLegendOpts(opts.Legend{Show: opts.Bool(true), Top: "2", Left: "center"}),
+		charts.WithLegendOpts(legend),
 		charts.WithXAxisOpts(xAxis),
 		charts.WithYAxisOpts(yAxis),
 	)
@@ -264,10 +274,7 @@ func noBandReason(sr trends.Series) string {
 // interval, change from baseline, reliable change, expected change for age
 // and direction.
 func changeFigures(c trends.Change, unit string) []web.Pair {
-	perYear := unit + "/y"
-	if unit == "" {
-		perYear = "per year"
-	}
+	perYear := perYearUnit(unit)
 	out := []web.Pair{{Label: "Comparable visits", Value: strconv.Itoa(c.Points)}}
 	if c.Slope.Known {
 		out = append(out,

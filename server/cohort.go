@@ -2,12 +2,15 @@ package server
 
 import (
 	"html/template"
+	"math"
 	"net/http"
 	"net/url"
 	"strconv"
+	"strings"
 	"sync"
 	"time"
 
+	"longwave/metrics"
 	"longwave/trends"
 	"longwave/web"
 )
@@ -68,9 +71,11 @@ func (s *Server) buildCohort(r *http.Request) (*trends.Cohort, error) {
 // cohortQuery is the parsed filter, sort and page of a cohort request.
 type cohortQuery struct {
 	filter trends.RowFilter
-	sort   string
-	desc   bool
-	page   int
+	// verdict is the verdict filter's query value ("" for all).
+	verdict string
+	sort    string
+	desc    bool
+	page    int
 }
 
 var cohortSorts = []web.Pair{
@@ -80,6 +85,19 @@ var cohortSorts = []web.Pair{
 	{Label: "last visit, latest first", Value: "-last_visit"},
 	{Label: "most visits first", Value: "-visits"},
 	{Label: "fewest comparable visits first", Value: "comparable_visits"},
+	{Label: "verdict, declines faster than controls first", Value: "verdict"},
+}
+
+// cohortVerdicts are the choices of the verdict filter: the query value,
+// the words shown, and the direction of trends.RowFilter.Verdict.
+var cohortVerdicts = []struct {
+	value, label string
+	dir          trends.Direction
+}{
+	{"declines", "declines faster than controls", trends.DirectionDown},
+	{"within", "within the controls' range", trends.DirectionSteady},
+	{"rises", "rises faster than controls", trends.DirectionUp},
+	{"none", "no verdict", trends.DirectionUnknown},
 }
 
 func parseCohortQuery(q url.Values) (cohortQuery, error) {
@@ -87,6 +105,16 @@ func parseCohortQuery(q url.Values) (cohortQuery, error) {
 	cq.filter.Overdue = q.Get("overdue") == "1" || q.Get("overdue") == "true"
 	cq.filter.Flagged = q.Get("flagged") == "1" || q.Get("flagged") == "true"
 	cq.filter.ReliableChange = q.Get("reliable") == "1" || q.Get("reliable") == "true"
+	if v := q.Get("verdict"); v != "" {
+		for _, c := range cohortVerdicts {
+			if c.value == v {
+				cq.verdict, cq.filter.Verdict = v, c.dir
+			}
+		}
+		if cq.verdict == "" {
+			return cq, problem(http.StatusBadRequest, "unknown verdict "+strconv.Quote(v)+": want declines, within, rises or none")
+		}
+	}
 	if s := q.Get("sort"); s != "" {
 		cq.desc = s[0] == '-'
 		if cq.desc {
@@ -95,7 +123,7 @@ func parseCohortQuery(q url.Values) (cohortQuery, error) {
 		cq.sort = s
 	}
 	if err := trends.SortRows(nil, cq.sort, cq.desc); err != nil {
-		return cq, problem(http.StatusBadRequest, "unknown sort order "+strconv.Quote(q.Get("sort"))+": want code, overdue, last_visit, next_due, visits or comparable_visits, with - for descending")
+		return cq, problem(http.StatusBadRequest, "unknown sort order "+strconv.Quote(q.Get("sort"))+": want code, overdue, last_visit, next_due, visits, comparable_visits or verdict, with - for descending")
 	}
 	if p := q.Get("page"); p != "" {
 		n, err := strconv.Atoi(p)
@@ -125,6 +153,9 @@ func (cq cohortQuery) values(page int) url.Values {
 	}
 	if cq.filter.ReliableChange {
 		v.Set("reliable", "1")
+	}
+	if cq.verdict != "" {
+		v.Set("verdict", cq.verdict)
 	}
 	v.Set("sort", cq.sortValue())
 	if page > 1 {
@@ -197,6 +228,8 @@ func cohortBody(c *trends.Cohort, cq cohortQuery, rows []trends.CohortRow) *web.
 		Reliable:    cq.filter.ReliableChange,
 		Sort:        cq.sortValue(),
 		SortOptions: cohortSorts,
+		Verdict:     cq.verdict,
+		Verdicts:    []web.Pair{{Label: "any verdict", Value: ""}},
 		Total:       len(rows),
 		CSVURL:      "/cohort.csv?" + cq.values(0).Encode(),
 	}
@@ -209,8 +242,16 @@ func cohortBody(c *trends.Cohort, cq cohortQuery, rows []trends.CohortRow) *web.
 	if cq.page < pages {
 		page.NextURL = "/cohort?" + cq.values(cq.page+1).Encode()
 	}
+	for _, v := range cohortVerdicts {
+		page.Verdicts = append(page.Verdicts, web.Pair{Label: v.label, Value: v.value})
+	}
 	for _, ref := range c.Markers {
-		page.Markers = append(page.Markers, markerTitle(ref.Marker))
+		page.Markers = append(page.Markers, shortTitle(ref.Marker))
+	}
+	if len(c.Markers) > 0 {
+		t := markerTitle(c.Markers[0].Marker)
+		page.VerdictOf = strings.ToLower(t[:1]) + t[1:]
+		page.VerdictShort = shortTitle(c.Markers[0].Marker)
 	}
 	page.Rows = make([]web.CohortRow, 0, hi-lo)
 	for _, row := range rows[lo:hi] {
@@ -238,6 +279,22 @@ func cohortRowView(row trends.CohortRow) web.CohortRow {
 			v.Flags = append(v.Flags, label)
 		}
 	}
+	if len(row.Markers) > 0 {
+		m := row.Markers[0]
+		v.Spark = sparkLine(m.Values, markerTitle(m.Marker))
+		vd := m.Verdict
+		switch {
+		case !vd.Known:
+			v.Verdict, v.VerdictKey, v.VerdictWhy = "no verdict", "none", sentence(peopleText(vd.Reason))
+		case vd.Direction == trends.DirectionDown:
+			v.Verdict, v.VerdictKey = "declines faster than controls", "down"
+		case vd.Direction == trends.DirectionUp:
+			v.Verdict, v.VerdictKey = "rises faster than controls", "up"
+		default:
+			v.Verdict, v.VerdictKey = "within the controls' range", "steady"
+		}
+		v.Concern = vd.Concern
+	}
 	for _, m := range row.Markers {
 		d := web.Direction{Marker: markerTitle(m.Marker), Text: directionWords(m.Direction), Reliable: m.ReliableChange}
 		switch m.Direction {
@@ -260,4 +317,72 @@ func orDash(s string) string {
 		return "–"
 	}
 	return s
+}
+
+// Size of a cohort row's small line (SVG user units = CSS pixels).
+const sparkWidth, sparkHeight, sparkPad = 96.0, 22.0, 2.5
+
+// sparkLine draws a marker's comparable values as a small line for the
+// cohort table: x by date, y scaled from the lowest to the highest value
+// (a flat line mid-height when they are equal), the latest value marked
+// with a dot. nil without values; one value is a dot only.
+func sparkLine(values []trends.ChangePoint, marker string) *web.Spark {
+	var days []float64
+	var ys []float64
+	var first time.Time
+	for _, v := range values {
+		d, err := time.Parse(time.DateOnly, v.Date)
+		if err != nil {
+			continue
+		}
+		if first.IsZero() {
+			first = d
+		}
+		days = append(days, d.Sub(first).Hours()/24)
+		ys = append(ys, v.Value)
+	}
+	if len(ys) == 0 {
+		return nil
+	}
+	lo, hi := ys[0], ys[0]
+	for _, y := range ys {
+		lo, hi = math.Min(lo, y), math.Max(hi, y)
+	}
+	span := days[len(days)-1]
+	var pts []string
+	var x, y float64
+	for i := range ys {
+		x = sparkWidth / 2
+		if span > 0 {
+			x = sparkPad + (sparkWidth-2*sparkPad)*days[i]/span
+		}
+		y = sparkHeight / 2
+		if hi > lo {
+			y = sparkPad + (sparkHeight-2*sparkPad)*(hi-ys[i])/(hi-lo)
+		}
+		pts = append(pts, decimalsDot(x)+","+decimalsDot(y))
+	}
+	label := marker + ": " + strconv.Itoa(len(ys)) + " comparable " + map[bool]string{true: "visit", false: "visits"}[len(ys) == 1] +
+		", from " + sig(ys[0]) + " to " + sig(ys[len(ys)-1])
+	return &web.Spark{Points: strings.Join(pts, " "), LastX: decimalsDot(x), LastY: decimalsDot(y), Label: label,
+		Width: decimalsDot(sparkWidth), Height: decimalsDot(sparkHeight)}
+}
+
+// decimalsDot formats an SVG coordinate (one decimal, ASCII minus).
+func decimalsDot(v float64) string { return strconv.FormatFloat(v, 'f', 1, 64) }
+
+// shortTitles are the headline markers' names for narrow column heads
+// (PDR is the trade's own abbreviation).
+var shortTitles = map[string]string{
+	metrics.PDRFrequency:      "PDR",
+	metrics.AlphaReactivity:   "Alpha reactivity",
+	metrics.ThetaAlphaRatio:   "Theta / alpha",
+	metrics.AperiodicExponent: "Aperiodic exponent",
+}
+
+func shortTitle(marker string) string {
+	if t, ok := shortTitles[marker]; ok {
+		return t
+	}
+	return markerTitle(marker)
 }

@@ -97,6 +97,27 @@ func methodText(u *metrics.Uncertainty) string {
 	return text
 }
 
+// perYearUnit is a unit's yearly change ("Hz/y"; "per year" for a
+// unitless marker).
+func perYearUnit(unit string) string {
+	if unit == "" {
+		return "per year"
+	}
+	return unit + "/y"
+}
+
+// bornText is a patient's birth date or year for people.
+func bornText(date string, year int, none string) string {
+	switch {
+	case date != "":
+		return date
+	case year != 0:
+		return strconv.Itoa(year)
+	default:
+		return none
+	}
+}
+
 func displayUnit(u string) string {
 	if u == "1" || u == "ratio" || u == "share" {
 		return ""

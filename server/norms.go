@@ -61,10 +61,7 @@ func (s *Server) controlNorms(r *http.Request) (*trends.ControlNorms, error) {
 // visit-to-visit noise, the basis, and the published ageing notes.
 func normView(sr trends.Series) *web.NormView {
 	unit := displayUnit(sr.Unit)
-	perYear := unit + "/y"
-	if unit == "" {
-		perYear = "per year"
-	}
+	perYear := perYearUnit(unit)
 	ch := sr.Change
 	v := ch.Verdict
 	nv := &web.NormView{Verdict: sentence(v.Text), Known: v.Known, Concern: v.Concern, Basis: v.Basis, Note: v.Note,

@@ -25,13 +25,7 @@ func (s *Server) patientsPage(w http.ResponseWriter, r *http.Request) {
 		page.AddURL = addURL("")
 	}
 	for _, p := range list {
-		born := ""
-		switch {
-		case p.BirthDate != "":
-			born = p.BirthDate
-		case p.BirthYear != 0:
-			born = strconv.Itoa(p.BirthYear)
-		}
+		born := bornText(p.BirthDate, p.BirthYear, "")
 		last := p.LastVisit
 		if last == "" {
 			last = "none"
@@ -102,6 +96,20 @@ func (s *Server) course(r *http.Request, code string) (trends.Course, error) {
 	}), nil
 }
 
+// auditedCourse reads the {code} of the path, builds that patient's
+// course and audits the view, naming how it was read ("api", "summary").
+func (s *Server) auditedCourse(r *http.Request, how string) (trends.Course, error) {
+	code, err := patientCode(r)
+	if err != nil {
+		return trends.Course{}, err
+	}
+	c, err := s.course(r, code)
+	if err != nil {
+		return c, err
+	}
+	return c, s.audit(r, store.AuditPatientView, code+" ("+how+")")
+}
+
 // visitFlags returns a visit's flags as its patient's course sees them:
 // stored flags, the settings check and the comparison with the previous
 // visit.
@@ -116,6 +124,23 @@ func (s *Server) visitFlags(r *http.Request, p store.Patient, v store.VisitRecor
 		}
 	}
 	return v.Flags, nil
+}
+
+// courseDisplays reads the stored display products of a course's visits
+// (a visit without any is left out).
+func (s *Server) courseDisplays(r *http.Request, c trends.Course) (map[int64]metrics.Display, error) {
+	out := map[int64]metrics.Display{}
+	for _, v := range c.Visits {
+		d, err := s.st.VisitDisplay(r.Context(), v.VisitID)
+		switch {
+		case errors.Is(err, store.ErrNotFound):
+			continue
+		case err != nil:
+			return nil, err
+		}
+		out[v.VisitID] = d
+	}
+	return out, nil
 }
 
 // coursePage shows a patient's course. The body is cached (cache.go); the
@@ -133,7 +158,11 @@ func (s *Server) coursePage(w http.ResponseWriter, r *http.Request) {
 		if err != nil {
 			return "", err
 		}
-		return s.tpl.RenderCourseBody(courseBody(c, canAdd))
+		displays, err := s.courseDisplays(r, c)
+		if err != nil {
+			return "", err
+		}
+		return s.tpl.RenderCourseBody(courseBody(c, displays, canAdd))
 	})
 	if err != nil {
 		s.fail(w, r, err)
@@ -146,45 +175,9 @@ func (s *Server) coursePage(w http.ResponseWriter, r *http.Request) {
 	s.render(w, r, http.StatusOK, &web.CoursePage{Frame: s.frame(r, "Course "+code, ""), Body: body})
 }
 
-// courseBody lays out a course: a chart per marker, the visits table.
-func courseBody(c trends.Course, canAdd bool) *web.CourseBody {
-	code := c.Patient.Code
-	page := &web.CourseBody{
-		Code:      code,
-		Advisory:  c.Advisory,
-		ChartData: map[string]web.Option{},
-	}
-	page.Facts = coursefacts(c)
-	if canAdd {
-		page.AddURL = addURL(code)
-	}
-	for i, sr := range chartSeries(c.Series) {
-		key := "m" + strconv.Itoa(i)
-		opt, chart := courseChart(sr)
-		chart.Key = key
-		chart.Norm = normView(sr)
-		page.ChartData[key] = opt
-		page.Charts = append(page.Charts, chart)
-	}
-	for _, v := range c.Visits {
-		page.Visits = append(page.Visits, web.VisitRow{
-			Date: v.Date, Age: verdictAge(v), URL: visitURL(v.VisitID), Comparable: v.Comparable,
-			Verdict: verdictWords(v.Verdict), Flags: flagViews(v.Flags),
-			Conditions: courseConditions(v),
-		})
-	}
-	return page
-}
-
 func coursefacts(c trends.Course) []web.Pair {
 	p := c.Patient
-	born := "not given"
-	switch {
-	case p.BirthDate != "":
-		born = p.BirthDate
-	case p.BirthYear != 0:
-		born = strconv.Itoa(p.BirthYear)
-	}
+	born := bornText(p.BirthDate, p.BirthYear, "not given")
 	due := c.NextDue
 	if due == "" {
 		due = "no visit yet"

@@ -69,8 +69,9 @@ func can(r *http.Request, p permission) bool {
 }
 
 // Our URLs, built in one place.
-func courseURL(code string) string { return "/patients/" + url.PathEscape(code) }
-func visitURL(id int64) string     { return "/visits/" + itoa(id) }
+func courseURL(code string) string  { return "/patients/" + url.PathEscape(code) }
+func visitURL(id int64) string      { return "/visits/" + itoa(id) }
+func summaryURL(code string) string { return courseURL(code) + "/summary" }
 func addURL(code string) string {
 	if code == "" {
 		return "/add"

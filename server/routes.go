@@ -35,6 +35,7 @@ func (s *Server) table() []route {
 		{"home", http.MethodGet, "/", permSignedIn, s.home},
 		{"patients", http.MethodGet, "/patients", permView, s.patientsPage},
 		{"course", http.MethodGet, "/patients/{code}", permView, s.coursePage},
+		{"summary", http.MethodGet, "/patients/{code}/summary", permView, s.summaryPage},
 		{"visit", http.MethodGet, "/visits/{id:[0-9]+}", permView, s.visitPage},
 		{"cohort", http.MethodGet, "/cohort", permCohort, s.cohortPage},
 		{"cohort-csv", http.MethodGet, "/cohort.csv", permExport, s.exportCSV},

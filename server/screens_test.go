@@ -20,7 +20,7 @@ func screenPaths(t *testing.T, c *client) []string {
 	paths := []string{"/patients", "/cohort", "/cohort?overdue=1&sort=-overdue", "/add", "/add?patient=LW-0101",
 		"/sources", "/users", "/no-such-page"}
 	for _, code := range []string{"LW-0101", xssCode} {
-		paths = append(paths, courseURL(code))
+		paths = append(paths, courseURL(code), summaryURL(code))
 		status, body, _ := c.get("/api/v1" + courseURL(code) + "/course")
 		if status != http.StatusOK {
 			t.Fatalf("course API of %q: status %d: %s", code, status, body)

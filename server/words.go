@@ -27,6 +27,7 @@ var ruleWords = map[string]string{
 	trends.RuleOccipitalMissing:    "O1 or O2 missing or bad",
 	trends.RuleFewGoodPositions:    "too few good electrode positions",
 	trends.RuleLittleCleanClosed:   "too little clean eyes-closed data",
+	trends.RuleIntervalWide:        "the value's own interval too wide to compare",
 	trends.RuleNoEyesOpen:          "no clean eyes-open data",
 	trends.RuleEyeStateUnknown:     "eye state not known",
 	trends.RuleDrowsy:              "drowsy during the recording",
@@ -37,7 +38,6 @@ var ruleWords = map[string]string{
 	trends.RuleSampleRateChange:    "sampling rate changed since the previous visit",
 	trends.RuleFiltersChange:       "hardware filters changed since the previous visit",
 	trends.RuleBadDate:             "visit date is not a calendar date",
-	trends.RuleIntervalWide:        "interval too wide to compare",
 
 	metrics.RuleAmplitude: "swing too large (movement, electrode pop or blink)",
 	metrics.RuleFlat:      "signal flat",

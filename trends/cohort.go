@@ -72,6 +72,13 @@ type MarkerDirection struct {
 	RCIKnown       bool      `json:"rci_known"`
 	RC             float64   `json:"rc"`
 	ReliableChange bool      `json:"reliable_change"`
+	// Values are the comparable, dated values in date order (the cohort
+	// screen draws them as a small line).
+	Values []ChangePoint `json:"values"`
+	// Verdict is the patient's slope against the clinic's control model
+	// (CompareSlope over the comparable visits of known age), or why there
+	// is none.
+	Verdict SlopeVerdict `json:"verdict"`
 }
 
 // CohortRow is one patient's follow-up.
@@ -229,10 +236,16 @@ func directionOf(as []assessed, ref SeriesRef, table []Reliability, norms *Contr
 	years := make([]float64, 0, len(as))
 	values := make([]float64, 0, len(as))
 	var first civilDate
+	var pv []PatientVisit // for the verdict: comparable visits of known age
+	var age float64
 	for i := range as {
-		v, ok := comparableValue(&as[i], id)
+		v, se, ok := comparableValue(&as[i], id)
 		if !ok || !as[i].dateOK {
 			continue
+		}
+		if as[i].rec.Visit.AgeKnown {
+			pv = append(pv, PatientVisit{AgeYears: as[i].rec.Visit.AgeYears, Value: v, SE: se})
+			age += as[i].rec.Visit.AgeYears
 		}
 		if len(cps) == 0 {
 			first = as[i].date
@@ -241,32 +254,43 @@ func directionOf(as []assessed, ref SeriesRef, table []Reliability, norms *Contr
 		years = append(years, float64(as[i].date.daysSince(first))/DaysPerYear)
 		values = append(values, v)
 	}
+	if len(pv) > 0 {
+		age /= float64(len(pv))
+	}
 	rel, relOK := findReliability(table, id.name, id.region, id.state)
-	ch := changeFrom(cps, years, values, rel, relOK, ExpectedRate{}, norms.find(id.name, id.region, id.state))
+	norm := norms.find(id.name, id.region, id.state)
+	ch := changeFrom(cps, years, values, rel, relOK, ExpectedRate{}, norm)
+	md.Values = cps
+	md.Verdict = CompareSlope(FitPatientSlope(pv, norm.ControlNorm), norm.ControlNorm, age)
 	md.Points, md.Direction, md.DirectionBasis = ch.Points, ch.Direction, ch.DirectionBasis
 	md.HasSlope, md.SlopePerYear = ch.Slope.Known, ch.Slope.PerYear
 	md.RCIKnown, md.RC, md.ReliableChange = ch.Reliable.Known, ch.Reliable.RC, ch.Reliable.Reliable
 	return md
 }
 
-// comparableValue is pointOf without the reasons: the marker's value and
-// whether it is comparable at this visit.
-func comparableValue(a *assessed, id seriesID) (float64, bool) {
+// comparableValue is pointOf without the reasons: the marker's value, its
+// own standard error (0 without one) and whether it is comparable at this
+// visit.
+func comparableValue(a *assessed, id seriesID) (float64, float64, bool) {
 	for _, m := range a.rec.Markers {
 		if m.Name != id.name || m.Region != id.region || string(m.State) != id.state {
 			continue
 		}
 		if !m.Computable {
-			return 0, false
+			return 0, 0, false
 		}
 		for _, f := range a.flags {
 			if f.Severity == metrics.NotComparable && affects(f.Markers, id.name, id.region, id.state) {
-				return 0, false
+				return 0, 0, false
 			}
 		}
-		return m.Value, true
+		se := 0.0
+		if u := m.Uncertainty; u != nil && u.SE > 0 {
+			se = u.SE
+		}
+		return m.Value, se, true
 	}
-	return 0, false
+	return 0, 0, false
 }
 
 func findSeries(as []assessed, ref SeriesRef) (seriesID, bool) {
@@ -299,7 +323,46 @@ const (
 	SortByNextDue    = "next_due"
 	SortByVisits     = "visits"
 	SortByComparable = "comparable_visits"
+	// SortByVerdict orders by the verdict of the first main marker (the
+	// posterior dominant rhythm by default): declines faster than the
+	// controls, rises faster, within the controls' range, no verdict.
+	SortByVerdict = "verdict"
 )
+
+// rowDirection is the direction of a row's verdict, DirectionUnknown
+// without one.
+func rowDirection(r CohortRow) Direction {
+	if v := RowVerdict(r); v.Known {
+		return v.Direction
+	}
+	return DirectionUnknown
+}
+
+// RowVerdict is the verdict a row is sorted and filtered by: that of its
+// first main marker (DirectionUnknown without one).
+func RowVerdict(r CohortRow) SlopeVerdict {
+	if len(r.Markers) == 0 {
+		return SlopeVerdict{Direction: DirectionUnknown}
+	}
+	return r.Markers[0].Verdict
+}
+
+// verdictRank orders verdicts for SortByVerdict, declines faster first.
+func verdictRank(r CohortRow) int {
+	v := RowVerdict(r)
+	if !v.Known {
+		return 3
+	}
+	switch v.Direction {
+	case DirectionDown:
+		return 0
+	case DirectionUp:
+		return 1
+	case DirectionSteady:
+		return 2
+	}
+	return 3
+}
 
 // ErrSortKey is returned by SortRows for an unknown key.
 var ErrSortKey = errors.New("trends: unknown sort key")
@@ -321,8 +384,10 @@ func SortRows(rows []CohortRow, key string, descending bool) error {
 		by = func(a, b CohortRow) int { return cmp.Compare(a.Visits, b.Visits) }
 	case SortByComparable:
 		by = func(a, b CohortRow) int { return cmp.Compare(a.ComparableVisits, b.ComparableVisits) }
+	case SortByVerdict:
+		by = func(a, b CohortRow) int { return cmp.Compare(verdictRank(a), verdictRank(b)) }
 	default:
-		return fmt.Errorf("%w %q: want code, overdue, last_visit, next_due, visits or comparable_visits", ErrSortKey, key)
+		return fmt.Errorf("%w %q: want code, overdue, last_visit, next_due, visits, comparable_visits or verdict", ErrSortKey, key)
 	}
 	slices.SortStableFunc(rows, func(a, b CohortRow) int {
 		c := by(a, b)
@@ -339,6 +404,10 @@ type RowFilter struct {
 	Overdue        bool `json:"overdue"`
 	Flagged        bool `json:"flagged"`
 	ReliableChange bool `json:"reliable_change"`
+	// Verdict keeps the rows whose RowVerdict has this direction
+	// (DirectionDown: declines faster than the controls, DirectionUp,
+	// DirectionSteady: within, DirectionUnknown: no verdict); "" keeps all.
+	Verdict Direction `json:"verdict,omitempty"`
 }
 
 // FilterRows returns the rows that meet f, in order (a new slice).
@@ -346,6 +415,9 @@ func FilterRows(rows []CohortRow, f RowFilter) []CohortRow {
 	out := []CohortRow{}
 	for _, r := range rows {
 		if (f.Overdue && !r.Overdue) || (f.Flagged && !r.Flagged) || (f.ReliableChange && !r.ReliableChange) {
+			continue
+		}
+		if f.Verdict != "" && rowDirection(r) != f.Verdict {
 			continue
 		}
 		out = append(out, r)

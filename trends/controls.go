@@ -81,7 +81,7 @@ func BuildControlNorms(patients []clinic.PatientCourse, opt ControlNormOptions) 
 				if opt.Series != nil && !slices.ContainsFunc(opt.Series, func(r SeriesRef) bool { return r.matches(id) }) {
 					continue
 				}
-				v, ok := comparableValue(a, id)
+				v, _, ok := comparableValue(a, id)
 				if !ok {
 					continue
 				}

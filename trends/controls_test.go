@@ -4,6 +4,7 @@ import (
 	"fmt"
 	"math"
 	"math/rand/v2"
+	"slices"
 	"strings"
 	"testing"
 	"time"
@@ -152,5 +153,69 @@ func TestCourseWithControlNorms(t *testing.T) {
 	c = BuildCourse(clinic.Patient{Code: "LH-0008"}, slowing[:2], CourseOptions{SettingsVersion: testVersion, SettingsHash: testHash, Today: today, Norms: norms})
 	if v := c.Series[0].Change.Verdict; v.Known || !strings.Contains(v.Reason, "at least 3") {
 		t.Errorf("two visits: verdict %+v", v)
+	}
+}
+
+// TestCohortVerdictMatchesCourse checks that a cohort row carries the same
+// verdict against the controls as the patient's course, with the comparable
+// values for its small line, and that the rows sort and filter by it
+// (declines faster first). Synthetic ground truth: one slowing patient
+// (−0.3 Hz a year), one steady, one with two visits only.
+func TestCohortVerdictMatchesCourse(t *testing.T) {
+	today := time.Date(2026, 12, 3, 9, 0, 0, 0, time.UTC)
+	norms := BuildControlNorms(ageingControls(24, -0.02), ControlNormOptions{SettingsVersion: testVersion, SettingsHash: testHash, Today: today})
+	slowing := []clinic.VisitRecord{
+		visitRec(1, "2021-05-01", 70.2, 9.9), visitRec(2, "2022-05-03", 71.2, 9.6),
+		visitRec(3, "2023-05-02", 72.2, 9.3), visitRec(4, "2024-05-06", 73.2, 9.0),
+	}
+	steady := []clinic.VisitRecord{
+		visitRec(11, "2021-05-01", 70.2, 9.9), visitRec(12, "2022-05-03", 71.2, 9.95),
+		visitRec(13, "2023-05-02", 72.2, 9.85), visitRec(14, "2024-05-06", 73.2, 9.9),
+	}
+	short := []clinic.VisitRecord{visitRec(21, "2023-05-02", 72.2, 9.3), visitRec(22, "2024-05-06", 73.2, 9.0)}
+	patients := []clinic.PatientCourse{
+		{Patient: clinic.Patient{ID: 3, Code: "LH-S"}, Visits: short},
+		{Patient: clinic.Patient{ID: 2, Code: "LH-T"}, Visits: steady},
+		{Patient: clinic.Patient{ID: 1, Code: "LH-D"}, Visits: slowing},
+	}
+	c := BuildCohort(patients, CohortOptions{Today: today, SettingsVersion: testVersion, SettingsHash: testHash, Norms: norms})
+	course := BuildCourse(patients[2].Patient, slowing, CourseOptions{SettingsVersion: testVersion, SettingsHash: testHash, Today: today, Norms: norms})
+	var want SlopeVerdict
+	for _, s := range course.Series {
+		if s.Marker == metrics.PDRFrequency && s.Region == metrics.RegionPosterior && s.State == "closed" {
+			want = s.Change.Verdict
+		}
+	}
+	got := RowVerdict(c.Rows[2])
+	if !want.Known || got.Text != want.Text || math.Abs(got.Patient.PerYear-want.Patient.PerYear) > 1e-12 || got.Direction != DirectionDown {
+		t.Errorf("cohort verdict %+v, course verdict %+v", got, want)
+	}
+	if vs := c.Rows[2].Markers[0].Values; len(vs) != 4 || vs[0].Date != "2021-05-01" || vs[3].Value != 9.0 {
+		t.Errorf("row values %+v, want the 4 comparable visits in date order", vs)
+	}
+	if v := RowVerdict(c.Rows[1]); !v.Known || v.Direction != DirectionSteady {
+		t.Errorf("steady patient: %+v", v)
+	}
+	if v := RowVerdict(c.Rows[0]); v.Known || !strings.Contains(v.Reason, "at least 3") {
+		t.Errorf("two visits: %+v", v)
+	}
+	rows := slices.Clone(c.Rows)
+	if err := SortRows(rows, SortByVerdict, false); err != nil {
+		t.Fatal(err)
+	}
+	var order []string
+	for _, r := range rows {
+		order = append(order, r.Code)
+	}
+	if !slices.Equal(order, []string{"LH-D", "LH-T", "LH-S"}) {
+		t.Errorf("sorted by verdict: %v, want declines faster, within, no verdict", order)
+	}
+	for dir, code := range map[Direction]string{DirectionDown: "LH-D", DirectionSteady: "LH-T", DirectionUnknown: "LH-S"} {
+		if f := FilterRows(c.Rows, RowFilter{Verdict: dir}); len(f) != 1 || f[0].Code != code {
+			t.Errorf("filter verdict %s: %d rows, want %s", dir, len(f), code)
+		}
+	}
+	if f := FilterRows(c.Rows, RowFilter{Verdict: DirectionUp}); len(f) != 0 {
+		t.Errorf("filter rises faster: %d rows, want none", len(f))
 	}
 }

@@ -12,6 +12,7 @@ package web
 const (
 	ColourLine       = "#2f5873" // comparable visits, spectra
 	ColourApart      = "#7b4f6e" // visits that cannot be compared
+	ColourApartGrey  = "#9b968c" // their spectra and band powers, drawn apart
 	ColourBand       = "rgba(111, 145, 168, 0.18)"
 	ColourBandEdge   = "rgba(111, 145, 168, 0.55)"
 	ColourFit        = "#8c8577" // aperiodic fit

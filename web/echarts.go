@@ -23,6 +23,8 @@ import (
 //     same in every time zone);
 //   - tooltip.confine (the tooltip stays inside the chart box);
 //   - per-series endLabel, silent, sampling and z (SingleSeries has none);
+//   - the names of the series a switch on the page shows and hides
+//     (lwApart, read by charts.js; not an echarts field);
 //   - data items with our tooltip lines (Point: go-echarts' LineData has no
 //     room for them; SingleSeries.Data is untyped, so WithData sets them).
 //
@@ -46,6 +48,10 @@ type Extras struct {
 	// Series holds the additions of each series, by series index (missing
 	// entries add nothing).
 	Series []SeriesExtra
+	// Toggle names the series a switch on the page shows and hides
+	// (charts.js reads them from the option's lwApart list, not an echarts
+	// field, and removes it before echarts sees the option).
+	Toggle []string
 }
 
 // SeriesExtra are a series' fields that charts.SingleSeries lacks.
@@ -111,6 +117,9 @@ func (v extrasVisitor) Visit(option map[string]interface{}) {
 	delete(option, "toolbox")
 	if v.x.UseUTC {
 		option["useUTC"] = true
+	}
+	if len(v.x.Toggle) > 0 {
+		option["lwApart"] = v.x.Toggle
 	}
 }
 

@@ -106,12 +106,18 @@ type CohortBody struct {
 	Overdue, Flagged, Reliable bool
 	Sort                       string
 	SortOptions                []Pair // Label: shown, Value: key
-	Markers                    []string
-	Rows                       []CohortRow
-	Total                      int
-	PageText                   string
-	PrevURL, NextURL           string
-	CSVURL                     string
+	// Verdict is the verdict filter's value ("" for all), Verdicts its
+	// choices; VerdictOf names the marker the verdict column judges.
+	Verdict          string
+	Verdicts         []Pair
+	VerdictOf        string
+	VerdictShort     string // the same marker's name for a column head
+	Markers          []string
+	Rows             []CohortRow
+	Total            int
+	PageText         string
+	PrevURL, NextURL string
+	CSVURL           string
 }
 
 // CohortRow is one patient's follow-up.
@@ -126,6 +132,23 @@ type CohortRow struct {
 	Overdue     bool
 	Flags       []string
 	Directions  []Direction
+	// Spark is the small line of the first main marker's comparable
+	// values (nil without any).
+	Spark *Spark
+	// Verdict is the first main marker against the clinic's controls in
+	// words, VerdictKey its CSS class suffix ("down", "up", "steady",
+	// "none"), VerdictWhy the reason when there is none; Concern when the
+	// change goes the way that worries.
+	Verdict    string
+	VerdictKey string
+	VerdictWhy string
+	Concern    bool
+}
+
+// Spark is a small inline SVG line: its points in SVG user units, the
+// latest point and a text alternative.
+type Spark struct {
+	Points, LastX, LastY, Label, Width, Height string
 }
 
 // Direction is a marker's change over the patient's comparable visits in
@@ -146,15 +169,75 @@ type CoursePage struct {
 
 func (*CoursePage) template() string { return "course.html" }
 
-// CourseBody is one patient's course: a chart per marker and the visits.
+// CourseBody is one patient's course: the overview (headline markers, the
+// strip of visits, the next due date, every visit's spectrum), the other
+// markers in closed groups, the visits and the page's notes.
 type CourseBody struct {
-	Code      string
-	Facts     []Pair
-	AddURL    string
-	Charts    []CourseChart
+	Code       string
+	Facts      []Pair
+	AddURL     string
+	SummaryURL string
+	Headline   []HeadlineCard
+	// NoVerdict says once why no headline marker has a verdict ("" when
+	// some have one, or the reasons differ).
+	NoVerdict string
+	Strip     []VisitChip
+	NextDue   string
+	Overdue   bool
+	Overlay   *OverlayBox
+	Groups    []ChartGroup
 	Visits    []VisitRow
+	// Notes are the explanations that would repeat under several charts,
+	// each shown once; the charts say "see note N".
+	Notes     []Note
 	ChartData map[string]Option
 	Advisory  string
+}
+
+// HeadlineCard is one headline marker of the overview: a small chart, its
+// change in words (Verdict, against the clinic's controls when Known), the
+// figures in a few lines, and every figure behind a closed details.
+type HeadlineCard struct {
+	Title   string
+	Where   string // region and state in words
+	Missing string // why there is no chart ("" when there is one)
+	Chart   CourseChart
+	Verdict string
+	Known   bool
+	Concern bool
+	Lines   []string
+}
+
+// VisitChip is one visit in the overview's strip.
+type VisitChip struct {
+	Date       string
+	URL        string
+	Comparable bool
+	Status     string // "comparable", "not comparable", …
+	Why        string // the first reason in a few words, "" when none
+}
+
+// OverlayBox is the chart of every visit's spectrum: its key, the counts of
+// comparable and other visits (the switch shows the latter), and each
+// comparable visit's peak frequency.
+type OverlayBox struct {
+	Key        string
+	Comparable int
+	Apart      int
+	Peaks      []Pair
+}
+
+// ChartGroup is a closed group of charts below the overview.
+type ChartGroup struct {
+	Title  string
+	Intro  string
+	Charts []CourseChart
+}
+
+// Note is an explanation shown once per page.
+type Note struct {
+	N    int
+	Text string
 }
 
 // CourseChart is one marker's chart with its change figures and the
@@ -353,3 +436,40 @@ type ErrorPage struct {
 }
 
 func (*ErrorPage) template() string { return "error.html" }
+
+// SummaryPage is the one-page summary of a patient for the clinic letter,
+// laid out for printing on A4.
+type SummaryPage struct {
+	Frame
+	Code      string
+	CourseURL string
+	Printed   string
+	Facts     []Pair
+	Rows      []SummaryRow
+	Overlay   *OverlayBox
+	Flags     []SummaryFlag
+	Settings  string
+	Basis     string
+	NoVerdict string // the one reason when no headline marker has a verdict
+	Advisory  string
+	Verdicts  string // the advisory of the verdicts against the controls
+	ChartData map[string]Option
+}
+
+func (*SummaryPage) template() string { return "summary.html" }
+
+// SummaryRow is one headline marker of the summary.
+type SummaryRow struct {
+	Marker, Where string
+	// Values are the first and latest comparable values ("9.47 → 8.01 Hz")
+	// and Dates their dates.
+	Values, Dates   string
+	Slope, Interval string
+	Verdict, Basis  string
+	Concern         bool
+}
+
+// SummaryFlag is one flag of a visit in words.
+type SummaryFlag struct {
+	Date, Severity, SeverityKey, Text, Markers string
+}

@@ -36,14 +36,24 @@ func samplePages(t *testing.T, tpl *Templates) map[string]Page {
 	c.AddSeries(hostile, nil, WithData([]Point{{Value: [2]any{"2024-01-01", 9.5}, Tip: []string{hostile}}}))
 	chart := map[string]Option{"m0": OptionOf(c, Extras{UseUTC: true})}
 	courseBody, err := tpl.RenderCourseBody(&CourseBody{Code: hostile, Facts: []Pair{{hostile, hostile}}, AddURL: "/add?patient=x",
-		Charts:    []CourseChart{{ChartBox: ChartBox{Key: "m0", Title: hostile, Caption: hostile}, Figures: []Pair{{hostile, hostile}}, Reference: hostile, HasBand: true, Status: hostile}},
+		SummaryURL: "/patients/x/summary",
+		Headline: []HeadlineCard{{Title: hostile, Where: hostile, Verdict: hostile, Lines: []string{hostile},
+			Chart: CourseChart{ChartBox: ChartBox{Key: "m0", Title: hostile, Caption: hostile}, Figures: []Pair{{hostile, hostile}}, Reference: hostile, HasBand: true, Status: hostile}}},
+		Strip:   []VisitChip{{Date: hostile, URL: "/visits/1", Status: hostile, Why: hostile}},
+		NextDue: hostile,
+		Overlay: &OverlayBox{Key: "m0", Apart: 1, Peaks: []Pair{{hostile, hostile}}},
+		Groups: []ChartGroup{{Title: hostile, Intro: hostile,
+			Charts: []CourseChart{{ChartBox: ChartBox{Key: "m0", Title: hostile, Caption: hostile}, Figures: []Pair{{hostile, hostile}}, Reference: hostile}}}},
+		Notes:     []Note{{N: 1, Text: hostile}},
 		Visits:    []VisitRow{{Date: "2024-01-01", Age: "70 y", URL: "/visits/1", Verdict: hostile, Conditions: []Pair{{hostile, hostile}}, Flags: flags}},
 		ChartData: chart, Advisory: hostile})
 	if err != nil {
 		t.Fatal(err)
 	}
 	cohortBody, err := tpl.RenderCohortBody(&CohortBody{Sort: "code", SortOptions: []Pair{{"code", "code"}}, Markers: []string{hostile},
-		Rows:   []CohortRow{{Code: hostile, URL: "/patients/x", Flags: []string{hostile}, Directions: []Direction{{Marker: hostile, Text: hostile, Key: "down"}}}},
+		Verdicts: []Pair{{hostile, hostile}}, VerdictOf: hostile,
+		Rows: []CohortRow{{Code: hostile, URL: "/patients/x", Flags: []string{hostile}, Directions: []Direction{{Marker: hostile, Text: hostile, Key: "down"}},
+			Spark: &Spark{Points: "1,2 3,4", LastX: "3", LastY: "4", Label: hostile, Width: "96", Height: "22"}, Verdict: hostile, VerdictKey: "none", VerdictWhy: hostile}},
 		CSVURL: "/cohort.csv?sort=code"})
 	if err != nil {
 		t.Fatal(err)
@@ -62,6 +72,11 @@ func samplePages(t *testing.T, tpl *Templates) map[string]Page {
 		"sources": &SourcesPage{Frame: f, Advisory: hostile, Rows: []SourceRow{{Set: hostile, Citation: hostile, Note: hostile, Status: "checked"}}},
 		"users":   &UsersPage{Frame: f, Users: []UserRow{{Name: hostile, Role: "admin"}}, Roles: []string{"admin"}, Error: hostile, Audit: []AuditRow{{User: hostile, Subject: hostile}}},
 		"error":   &ErrorPage{Frame: f, Status: 404, Message: hostile},
+		"summary": &SummaryPage{Frame: f, Code: hostile, CourseURL: "/patients/x", Printed: "2026-12-03", Facts: []Pair{{hostile, hostile}},
+			Rows:     []SummaryRow{{Marker: hostile, Where: hostile, Values: hostile, Dates: hostile, Slope: hostile, Interval: hostile, Verdict: hostile, Basis: hostile}},
+			Overlay:  &OverlayBox{Key: "m0", Apart: 2, Peaks: []Pair{{hostile, hostile}}},
+			Flags:    []SummaryFlag{{Date: hostile, Severity: hostile, SeverityKey: "caution", Text: hostile, Markers: hostile}},
+			Settings: hostile, Basis: hostile, Advisory: hostile, Verdicts: hostile, ChartData: chart},
 	}
 }
 

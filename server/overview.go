@@ -232,6 +232,10 @@ func headlineWords(sr trends.Series) (string, bool, bool, []string) {
 		}
 		lines = append(lines, noVerdictLead+peopleText(why))
 	}
+	if ch.Points == 0 && len(sr.Points) > 0 {
+		lines = append(lines, "None of the "+strconv.Itoa(len(sr.Points))+" "+plural(len(sr.Points), "visit is", "visits are")+
+			" comparable for this marker; each visit's page says why")
+	}
 	if ch.Points > 0 {
 		lines = append(lines, "Latest "+withUnit(sig(ch.LatestValue), unit)+" on "+ch.LatestDate+"; "+
 			strconv.Itoa(ch.Points)+" comparable "+plural(ch.Points, "visit", "visits"))
@@ -334,6 +338,18 @@ func spectraOverlay(c trends.Course, displays map[int64]metrics.Display, compact
 	}
 	var list []drawn
 	comparable := 0
+	// A visit is drawn with the others when its posterior dominant rhythm
+	// (the marker this spectrum shows) can be compared: a flag that sets
+	// apart another marker only (an interval too wide for the eyes-open
+	// reactivity, say) does not hide its eyes-closed spectrum.
+	spectrumComparable := map[int64]bool{}
+	for _, sr := range c.Series {
+		if sr.Marker == metrics.PDRFrequency && sr.Region == metrics.RegionPosterior && sr.State == string(ingest.EyesClosed) {
+			for _, pt := range sr.Points {
+				spectrumComparable[pt.VisitID] = pt.Comparable
+			}
+		}
+	}
 	for _, v := range c.Visits { // in date order
 		d, ok := displays[v.VisitID]
 		if !ok {
@@ -343,7 +359,11 @@ func spectraOverlay(c trends.Course, displays map[int64]metrics.Display, compact
 		if !ok || sp.Region != metrics.RegionPosterior {
 			continue
 		}
-		dr := drawn{date: v.Date, apart: !v.Comparable, peak: sp.PeakHz}
+		ok = v.Comparable
+		if pc, known := spectrumComparable[v.VisitID]; known {
+			ok = pc
+		}
+		dr := drawn{date: v.Date, apart: !ok, peak: sp.PeakHz}
 		for i, f := range sp.Freqs {
 			if f >= 1 && f <= overlayMaxHz && sp.Power[i] > 0 {
 				dr.points = append(dr.points, [2]float64{round(f, 3), roundSig(sp.Power[i])})

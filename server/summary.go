@@ -126,14 +126,24 @@ func summaryView(c trends.Course, displays map[int64]metrics.Display, now time.T
 		page.ChartData[box.Key] = opt
 		page.Overlay = box
 	}
+	// One line per finding: the same rule, severity and markers at several
+	// visits is one line naming their dates, so that a finding repeated at
+	// every short visit does not push the letter onto a second page.
+	seen := map[web.SummaryFlag]int{}
 	for _, v := range c.Visits {
-		for _, f := range v.Flags {
+		for _, f := range groupIntervalFlags(v.Flags) {
 			fv := flagView(f)
 			if len(f.Markers) > 4 {
 				fv.Markers = strconv.Itoa(len(f.Markers)) + " markers"
 			}
-			page.Flags = append(page.Flags, web.SummaryFlag{Date: v.Date, Severity: fv.Severity, SeverityKey: fv.SeverityKey,
-				Text: ruleText(f.Rule), Markers: fv.Markers})
+			line := web.SummaryFlag{Severity: fv.Severity, SeverityKey: fv.SeverityKey, Text: ruleText(f.Rule), Markers: fv.Markers}
+			if i, ok := seen[line]; ok {
+				page.Flags[i].Date += ", " + v.Date
+				continue
+			}
+			seen[line] = len(page.Flags)
+			line.Date = v.Date
+			page.Flags = append(page.Flags, line)
 		}
 	}
 	if basis := firstBasis(c); basis != "" {

@@ -67,18 +67,26 @@ func benchCompute(b *testing.B, minutes float64) {
 }
 
 // benchComputeFile times Compute with s on a decoded copy of file (the
-// decode is not timed).
+// decode is not timed). Besides wall time it reports cpu-s/op, the
+// process's CPU time (user + system, all goroutines) per Compute: on a
+// shared machine the steadier figure.
 func benchComputeFile(b *testing.B, file []byte, s Settings) {
 	b.ReportAllocs()
 	b.ResetTimer()
+	var cpu time.Duration
 	for i := 0; i < b.N; i++ {
 		b.StopTimer()
 		rec := decodeBench(b, file)
+		start := processCPU()
 		b.StartTimer()
 		if _, err := Compute(rec, s); err != nil {
 			b.Fatal(err)
 		}
+		b.StopTimer()
+		cpu += processCPU() - start
+		b.StartTimer()
 	}
+	b.ReportMetric(cpu.Seconds()/float64(b.N), "cpu-s/op")
 }
 
 // BenchmarkCompute30Min times Compute (not the decode) on the 30-minute,

@@ -341,14 +341,11 @@ func regressOut(data [][]float32, targets []int, refs [][]float64, segs []ingest
 // gives coefficients 0: no correction.
 func fitRegression(data [][]float32, targets []int, refs [][]float64, segs []ingest.Segment, centre bool, workers int) [][]float64 {
 	k := len(refs)
-	centred := make([][]float64, k)
-	for j, r := range refs {
-		centred[j] = centredCopy(r, segs, centre)
-	}
+	means := segmentMeans(refs, segs, centre)
 	cov := mat.NewSymDense(k, nil)
 	for i := 0; i < k; i++ {
 		for j := i; j < k; j++ {
-			cov.SetSym(i, j, dotSegs(centred[i], centred[j], segs))
+			cov.SetSym(i, j, dotCentred(refs[i], refs[j], means[i], means[j], segs))
 		}
 	}
 	coef := make([][]float64, len(targets))
@@ -366,9 +363,11 @@ func fitRegression(data [][]float32, targets []int, refs [][]float64, segs []ing
 		x := data[targets[i]]
 		rhs := make([]float64, k)
 		for j := range rhs {
-			for _, g := range segs {
+			r := refs[j]
+			for s, g := range segs {
+				m := means[j][s]
 				for t := g.First; t < g.First+g.Count; t++ {
-					rhs[j] += centred[j][t] * float64(x[t])
+					rhs[j] += (r[t] - m) * float64(x[t])
 				}
 			}
 		}
@@ -386,17 +385,14 @@ func fitRegression(data [][]float32, targets []int, refs [][]float64, segs []ing
 // segment when centre is true (MNE's EOGRegression.apply; x keeps its own
 // mean), as they are otherwise.
 func applyRegression(data [][]float32, targets []int, refs [][]float64, coef [][]float64, segs []ingest.Segment, centre bool, workers int) {
-	centred := make([][]float64, len(refs))
-	for j, r := range refs {
-		centred[j] = centredCopy(r, segs, centre)
-	}
+	means := segmentMeans(refs, segs, centre)
 	parallel(len(targets), workers, func(_, i int) {
 		d := data[targets[i]]
-		for _, g := range segs {
+		for s, g := range segs {
 			for t := g.First; t < g.First+g.Count; t++ {
 				v := float64(d[t])
-				for j := range centred {
-					v -= coef[i][j] * centred[j][t]
+				for j, r := range refs {
+					v -= coef[i][j] * (r[t] - means[j][s])
 				}
 				d[t] = float32(v)
 			}
@@ -404,21 +400,22 @@ func applyRegression(data [][]float32, targets []int, refs [][]float64, coef [][
 	})
 }
 
-// centredCopy returns a copy of x with each segment's mean removed inside
-// the segment (when centre is true); samples outside every segment are 0.
-func centredCopy(x []float64, segs []ingest.Segment, centre bool) []float64 {
-	out := make([]float64, len(x))
-	for _, g := range segs {
-		seg := x[g.First : g.First+g.Count]
-		m := 0.0
-		if centre {
-			m = mean(seg)
+// segmentMeans returns means[j][s], the mean of refs[j] over segment s
+// (0 for every segment when centre is false). The regression centres a
+// predictor sample as it reads it, r[t] − means[j][s], rather than from a
+// centred copy: one value per segment instead of a copy of the signal.
+func segmentMeans(refs [][]float64, segs []ingest.Segment, centre bool) [][]float64 {
+	means := make([][]float64, len(refs))
+	for j, r := range refs {
+		means[j] = make([]float64, len(segs))
+		if !centre {
+			continue
 		}
-		for t, v := range seg {
-			out[g.First+t] = v - m
+		for s, g := range segs {
+			means[j][s] = mean(r[g.First : g.First+g.Count])
 		}
 	}
-	return out
+	return means
 }
 
 func mean32(x []float32) float64 {
@@ -443,11 +440,13 @@ func mean(x []float64) float64 {
 	return s / float64(len(x))
 }
 
-func dotSegs(a, b []float64, segs []ingest.Segment) float64 {
+// dotCentred is Σ over the samples of segs of (a − ma)(b − mb), ma and mb
+// the per-segment means (segmentMeans).
+func dotCentred(a, b, ma, mb []float64, segs []ingest.Segment) float64 {
 	s := 0.0
-	for _, g := range segs {
+	for k, g := range segs {
 		for t := g.First; t < g.First+g.Count; t++ {
-			s += a[t] * b[t]
+			s += (a[t] - ma[k]) * (b[t] - mb[k])
 		}
 	}
 	return s

@@ -92,7 +92,7 @@ func courseBody(c trends.Course, displays map[int64]metrics.Display, canAdd bool
 		chart.Norm = normView(sr)
 		page.ChartData[chart.Key] = opt
 		card.Chart = chart
-		card.Where = strings.TrimPrefix(regionName(sr.Region)+seriesState(sr.State), " · ")
+		card.Where = seriesWhere(sr)
 		card.Verdict, card.Known, card.Concern, card.Lines = headlineWords(sr)
 		page.Headline = append(page.Headline, card)
 	}
@@ -259,6 +259,12 @@ func plural(n int, one, many string) string {
 		return one
 	}
 	return many
+}
+
+// seriesWhere names a series' region and eye state for people
+// ("posterior · eyes closed").
+func seriesWhere(sr trends.Series) string {
+	return strings.TrimPrefix(regionName(sr.Region)+seriesState(sr.State), " · ")
 }
 
 // visitChip is one visit of the overview's strip: its date, and whether it

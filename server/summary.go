@@ -74,7 +74,7 @@ func summaryView(c trends.Course, displays map[int64]metrics.Display, now time.T
 		}
 		unit := displayUnit(sr.Unit)
 		ch := sr.Change
-		row.Where = regionName(sr.Region) + seriesState(sr.State)
+		row.Where = seriesWhere(sr)
 		if ch.Points > 0 {
 			row.Values = sig(ch.BaselineValue) + " → " + withUnit(sig(ch.LatestValue), unit)
 			row.Dates = ch.BaselineDate + " → " + ch.LatestDate

@@ -184,7 +184,7 @@ func FitPatientSlope(visits []PatientVisit, norm ControlNorm) PatientSlope {
 type SlopeVerdict struct {
 	Known  bool   `json:"known"`
 	Text   string `json:"text"`
-	Reason string `json:"reason,omitempty"`
+	Reason string `json:"reason"`
 	// Direction: DirectionDown (declines faster), DirectionUp (rises
 	// faster), DirectionSteady (within); DirectionUnknown without a verdict.
 	Direction Direction `json:"direction"`

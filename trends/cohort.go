@@ -131,141 +131,19 @@ type Cohort struct {
 
 // BuildCohort makes one row per patient (in the given order) and the
 // cohort's retention and share of non-comparable visits. Retention counts
-// every visit, comparable or not.
+// every visit, comparable or not. It is SummarisePatient over every patient
+// and CohortFromEntries over the entries, as the store's kept entries are.
 func BuildCohort(patients []clinic.PatientCourse, opt CohortOptions) Cohort {
-	table := opt.Reliability
-	if table == nil {
-		table = DefaultReliability()
+	eo := EntryOptions{SettingsVersion: opt.SettingsVersion, SettingsHash: opt.SettingsHash, Markers: opt.Markers}
+	entries := make([]CohortEntry, len(patients))
+	for i, cp := range patients {
+		entries[i] = SummarisePatient(cp.Patient, cp.Visits, eo)
 	}
-	refs := opt.Markers
-	if refs == nil {
-		refs = DefaultMainMarkers()
-	}
-	def := opt.FollowUpMonths
-	if def <= 0 {
-		def = DefaultFollowUpMonths
-	}
-	today := dateOf(opt.Today)
-	c := Cohort{Today: today.String(), FollowUpMonths: def, Markers: refs, Patients: len(patients),
-		Rows: make([]CohortRow, 0, len(patients)), Retention: []RetentionYear{}, Advisory: AdvisoryCourse}
-	type follow struct {
-		base  civilDate
-		years []float64 // every dated visit, years after baseline
-	}
-	var follows []follow
-	for _, cp := range patients {
-		p := cp.Patient
-		as := assess(cp.Visits, opt.SettingsVersion, opt.SettingsHash)
-		months := followUpMonths(p, def)
-		row := CohortRow{PatientID: p.ID, Code: p.Code, Group: p.Group, Cohort: p.Cohort, FollowUpMonths: months,
-			Visits: len(as), LatestFlags: []metrics.Flag{}, Markers: make([]MarkerDirection, 0, len(refs))}
-		var f follow
-		dated := 0
-		for _, a := range as {
-			if a.comparable {
-				row.ComparableVisits++
-			}
-			if !a.dateOK {
-				continue
-			}
-			if dated == 0 {
-				f.base = a.date
-				row.FirstVisit = a.rec.Visit.Date
-			}
-			dated++
-			f.years = append(f.years, float64(a.date.daysSince(f.base))/DaysPerYear)
-			row.LastVisit = a.rec.Visit.Date
-		}
-		if dated > 0 {
-			follows = append(follows, f)
-		}
-		c.Visits += len(as)
-		c.NonComparable += len(as) - row.ComparableVisits
-		row.NextDue, row.DaysOverdue = nextDue(as, months, today)
-		row.Overdue = row.DaysOverdue > 0
-		if n := len(as); n > 0 {
-			row.LatestFlags = nonNil(slices.Clone(as[n-1].flags))
-		}
-		row.Flagged = len(row.LatestFlags) > 0
-		for _, ref := range refs {
-			row.Markers = append(row.Markers, directionOf(as, ref, table, opt.Norms))
-			if row.Markers[len(row.Markers)-1].ReliableChange {
-				row.ReliableChange = true
-			}
-		}
-		c.Rows = append(c.Rows, row)
-	}
-	if c.Visits > 0 {
-		c.NonComparableShare = float64(c.NonComparable) / float64(c.Visits)
-	}
-	// Retention by follow-up year.
-	for k := 1; ; k++ {
-		ry := RetentionYear{Year: k}
-		for _, f := range follows {
-			if today.before(f.base.addYears(k)) {
-				continue
-			}
-			ry.Eligible++
-			lo, hi := float64(k)-RetentionWindowYears, float64(k)+RetentionWindowYears
-			for _, y := range f.years {
-				if y >= lo && y < hi {
-					ry.Retained++
-					break
-				}
-			}
-		}
-		if ry.Eligible == 0 {
-			break
-		}
-		ry.Share = float64(ry.Retained) / float64(ry.Eligible)
-		c.Retention = append(c.Retention, ry)
+	c, err := CohortFromEntries(entries, opt)
+	if err != nil {
+		panic("trends: entries made for the cohort's own markers: " + err.Error())
 	}
 	return c
-}
-
-// directionOf summarises one main marker of a patient.
-func directionOf(as []assessed, ref SeriesRef, table []Reliability, norms *ControlNorms) MarkerDirection {
-	id, ok := findSeries(as, ref)
-	md := MarkerDirection{Marker: ref.Marker, Region: ref.Region, State: ref.State,
-		Direction: DirectionUnknown, DirectionBasis: "marker not found in any visit"}
-	if !ok {
-		return md
-	}
-	md.Region, md.State = id.region, id.state
-	cps := make([]ChangePoint, 0, len(as))
-	years := make([]float64, 0, len(as))
-	values := make([]float64, 0, len(as))
-	var first civilDate
-	var pv []PatientVisit // for the verdict: comparable visits of known age
-	var age float64
-	for i := range as {
-		v, se, ok := comparableValue(&as[i], id)
-		if !ok || !as[i].dateOK {
-			continue
-		}
-		if as[i].rec.Visit.AgeKnown {
-			pv = append(pv, PatientVisit{AgeYears: as[i].rec.Visit.AgeYears, Value: v, SE: se})
-			age += as[i].rec.Visit.AgeYears
-		}
-		if len(cps) == 0 {
-			first = as[i].date
-		}
-		cps = append(cps, ChangePoint{VisitID: as[i].rec.Visit.ID, Date: as[i].rec.Visit.Date, Value: v})
-		years = append(years, float64(as[i].date.daysSince(first))/DaysPerYear)
-		values = append(values, v)
-	}
-	if len(pv) > 0 {
-		age /= float64(len(pv))
-	}
-	rel, relOK := findReliability(table, id.name, id.region, id.state)
-	norm := norms.find(id.name, id.region, id.state)
-	ch := changeFrom(cps, years, values, rel, relOK, ExpectedRate{}, norm)
-	md.Values = cps
-	md.Verdict = CompareSlope(FitPatientSlope(pv, norm.ControlNorm), norm.ControlNorm, age)
-	md.Points, md.Direction, md.DirectionBasis = ch.Points, ch.Direction, ch.DirectionBasis
-	md.HasSlope, md.SlopePerYear = ch.Slope.Known, ch.Slope.PerYear
-	md.RCIKnown, md.RC, md.ReliableChange = ch.Reliable.Known, ch.Reliable.RC, ch.Reliable.Reliable
-	return md
 }
 
 // comparableValue is pointOf without the reasons: the marker's value, its

@@ -212,9 +212,19 @@ type SlopeVerdict struct {
 // same norm) against the control norm at the patient's age (the mean age of
 // the visits, for the extrapolation note).
 func CompareSlope(p PatientSlope, norm ControlNorm, age float64) SlopeVerdict {
+	basis := ""
+	if norm.Known {
+		basis = norm.Basis()
+	}
+	return compareSlope(p, norm, basis, age)
+}
+
+// compareSlope is CompareSlope with the norm's Basis worked out already
+// (the cohort judges thousands of patients against one norm).
+func compareSlope(p PatientSlope, norm ControlNorm, basis string, age float64) SlopeVerdict {
 	v := SlopeVerdict{Direction: DirectionUnknown, Worrying: WorryingDirection(norm.Marker), Advisory: AdvisoryVerdict, Patient: p, Age: age}
 	if norm.Known {
-		v.Basis = norm.Basis()
+		v.Basis = basis
 		v.ExpectedPerYear, v.ExpectedCILow, v.ExpectedCIHigh = norm.PerYear.Value, norm.PerYear.CILow, norm.PerYear.CIHigh
 		v.ControlRangeLow, v.ControlRangeHigh = norm.ControlSlopeRange()
 	}

@@ -83,7 +83,11 @@ func loadVisit(tpl store.VisitRecord, code string, birth int, date string, seq i
 
 // buildLoadData inserts the 40-visit patient LW-LOAD40 and 5,000 cohort
 // patients (1 to 4 annual visits each) directly through the store.
-func buildLoadData(t *testing.T, e *env) {
+func buildLoadData(t *testing.T, e *env) { buildLoadDataVisits(t, e, 0) }
+
+// buildLoadDataVisits is buildLoadData with every cohort patient given
+// exactly perPatient annual visits (0: 1 to 4 at random).
+func buildLoadDataVisits(t *testing.T, e *env, perPatient int) {
 	t.Helper()
 	ctx := context.Background()
 	tpl := templateRecord(t, e)
@@ -117,6 +121,9 @@ func buildLoadData(t *testing.T, e *env) {
 	for p := 0; p < patients; p++ {
 		code := fmt.Sprintf("HM-%05d", p)
 		n := 1 + rng.IntN(4)
+		if perPatient > 0 {
+			n = perPatient
+		}
 		first := time.Date(2019+rng.IntN(4), time.Month(1+rng.IntN(12)), 1+rng.IntN(28), 0, 0, 0, 0, time.UTC)
 		for k := 0; k < n; k++ {
 			seq++

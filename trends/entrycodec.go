@@ -92,7 +92,9 @@ func (w *entryWriter) str(s string) {
 	w.b = binary.AppendUvarint(w.b, uint64(len(s)))
 	w.b = append(w.b, s...)
 }
-func (w *entryWriter) float(v float64) { w.b = binary.LittleEndian.AppendUint64(w.b, math.Float64bits(v)) }
+func (w *entryWriter) float(v float64) {
+	w.b = binary.LittleEndian.AppendUint64(w.b, math.Float64bits(v))
+}
 func (w *entryWriter) bool(v bool) {
 	if v {
 		w.b = append(w.b, 1)

@@ -5,9 +5,15 @@
 //
 // Owners: 0001 is the store's (patients, visits, recordings, analysis);
 // 0002 the trends package's (reference ranges); 0003 the server's
-// (accounts, sessions, audit log); 0004 the store's (marker intervals).
-// A file, once released, is never edited: a change is a new file with the
-// next number.
+// (accounts, sessions, audit log); 0004 the store's (marker intervals);
+// 0006 the store's (the cohort's kept entries). A file, once released, is
+// never edited: a change is a new file with the next number.
+//
+// A number may be missing while branches that each claim one are merged
+// (0005 was claimed when 0006 was written): the store records every
+// migration applied by its number and applies those it has not had, so a
+// file that arrives with a lower number than one already applied is still
+// applied once.
 package migrations
 
 import (
@@ -32,13 +38,13 @@ type Migration struct {
 	SQL     string // the statements, run as one script
 }
 
-// ErrBadName reports a file in FS whose name is not NNNN_name.sql, a number
-// used twice, or a gap in the numbering.
+// ErrBadName reports a file in FS whose name is not NNNN_name.sql, or a
+// number used twice.
 var ErrBadName = errors.New("migrations: bad file set")
 
-// All returns the migrations of FS ordered by version. The versions must be
-// 1, 2, … without gap or repeat, so that a database's recorded version says
-// exactly which files it has had.
+// All returns the migrations of FS ordered by version. Each version is used
+// once; a gap is allowed (see the package comment), since a database
+// records the set of versions it has had, not only the highest.
 func All() ([]Migration, error) {
 	return Load(FS)
 }
@@ -64,9 +70,9 @@ func Load(fsys fs.FS) ([]Migration, error) {
 		out = append(out, Migration{Version: v, Name: name, SQL: string(b)})
 	}
 	sort.Slice(out, func(i, j int) bool { return out[i].Version < out[j].Version })
-	for i, m := range out {
-		if m.Version != i+1 {
-			return nil, fmt.Errorf("%w: expected version %d, found %s", ErrBadName, i+1, m.Name)
+	for i := 1; i < len(out); i++ {
+		if out[i].Version == out[i-1].Version {
+			return nil, fmt.Errorf("%w: version %d used by %s and %s", ErrBadName, out[i].Version, out[i-1].Name, out[i].Name)
 		}
 	}
 	return out, nil

@@ -35,9 +35,12 @@ func schemaVersion(ctx context.Context, q querier) (int, error) {
 	return v, err
 }
 
-// migrate applies the migrations the database has not had, each in its own
-// transaction that also records it in schema_version. list nil means every
-// embedded migration.
+// migrate applies the migrations the database has not had, in version
+// order, each in its own transaction that also records it in
+// schema_version. A database is judged by the set of versions recorded, so
+// a migration whose number was skipped while branches were merged is
+// applied when it arrives; a recorded version this program does not know
+// means the database is newer. list nil means every embedded migration.
 func (s *Store) migrate(ctx context.Context, list []migrations.Migration) error {
 	if list == nil {
 		var err error
@@ -49,11 +52,41 @@ func (s *Store) migrate(ctx context.Context, list []migrations.Migration) error 
 	if err != nil {
 		return err
 	}
-	if have > len(list) {
-		return fmt.Errorf("%w: its schema version is %d, this longwave knows up to %d; use a newer longwave",
-			ErrNewerSchema, have, len(list))
+	applied := map[int]bool{}
+	if have > 0 {
+		rows, err := s.w.QueryContext(ctx, `SELECT version FROM schema_version ORDER BY version`)
+		if err != nil {
+			return err
+		}
+		for rows.Next() {
+			var v int
+			if err := rows.Scan(&v); err != nil {
+				rows.Close()
+				return err
+			}
+			applied[v] = true
+		}
+		rows.Close()
+		if err := rows.Err(); err != nil {
+			return err
+		}
 	}
-	for _, m := range list[have:] {
+	known := map[int]bool{}
+	last := 0
+	for _, m := range list {
+		known[m.Version] = true
+		last = max(last, m.Version)
+	}
+	for v := range applied {
+		if !known[v] {
+			return fmt.Errorf("%w: its schema version is %d (migration %d), this longwave knows up to %d; use a newer longwave",
+				ErrNewerSchema, have, v, last)
+		}
+	}
+	for _, m := range list {
+		if applied[m.Version] {
+			continue
+		}
 		err := s.inTx(ctx, func(tx *sql.Tx) error {
 			if _, err := tx.ExecContext(ctx, m.SQL); err != nil {
 				return err

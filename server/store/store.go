@@ -14,6 +14,8 @@ import (
 	"strings"
 	"time"
 
+	"longwave/metrics"
+
 	"modernc.org/sqlite"
 	sqlite3 "modernc.org/sqlite/lib"
 )
@@ -57,6 +59,10 @@ type Store struct {
 	// wrapWriter, when set by a test, wraps the writer of each recording
 	// file (to simulate a full disk).
 	wrapWriter func(io.Writer) io.Writer
+	// cohort are the settings the kept cohort entries are made for;
+	// keepEntries is set once the schema has their tables (cohort.go).
+	cohort      cohortSettings
+	keepEntries bool
 }
 
 // Option configures Open.
@@ -108,6 +114,9 @@ func Open(path string, opts ...Option) (*Store, error) {
 		w.Close()
 		return nil, fmt.Errorf("longwave: open %s: %w", path, notADatabase(err))
 	}
+	cur := metrics.Current()
+	s.KeepCohortFor(cur.Version, cur.Hash())
+	s.keepEntries = true
 	r, err := sql.Open("sqlite", dsn(path, true))
 	if err != nil {
 		w.Close()
@@ -201,7 +210,9 @@ func (s *Store) Path() string { return s.path }
 func (s *Store) stamp() string { return s.now().UTC().Format(time.RFC3339) }
 
 // inTx runs f in one write transaction, committed when f returns nil and
-// rolled back otherwise.
+// rolled back otherwise. Before it commits, the cohort entries of the
+// patients f changed are rebuilt (cohort.go), so that no transaction leaves
+// a kept entry behind its visits.
 func (s *Store) inTx(ctx context.Context, f func(tx *sql.Tx) error) error {
 	tx, err := s.w.BeginTx(ctx, nil)
 	if err != nil {
@@ -210,6 +221,12 @@ func (s *Store) inTx(ctx context.Context, f func(tx *sql.Tx) error) error {
 	if err := f(tx); err != nil {
 		tx.Rollback()
 		return err
+	}
+	if s.keepEntries {
+		if err := s.refreshEntries(ctx, tx); err != nil {
+			tx.Rollback()
+			return err
+		}
 	}
 	return tx.Commit()
 }

@@ -91,6 +91,12 @@ func buildLoadDataVisits(t *testing.T, e *env, perPatient int) {
 	t.Helper()
 	ctx := context.Background()
 	tpl := templateRecord(t, e)
+	// The 40 visits carry the template's spectra and traces, as ingested
+	// visits do: the course page reads their spectra.
+	disp, err := e.st.VisitDisplay(ctx, tpl.Visit.ID)
+	if err != nil {
+		t.Fatal(err)
+	}
 	rng := rand.New(rand.NewPCG(6, 40))
 	seq := 0
 	start := time.Now()
@@ -98,7 +104,9 @@ func buildLoadDataVisits(t *testing.T, e *env, perPatient int) {
 	for i := 0; i < loadCourseVisits; i++ {
 		date := base.AddDate(0, 6*i, 0).Format(time.DateOnly)
 		seq++
-		if _, err := e.st.SaveVisit(ctx, loadVisit(tpl, "LW-LOAD40", 1948, date, seq, -0.03*float64(i), rng)); err != nil {
+		nv := loadVisit(tpl, "LW-LOAD40", 1948, date, seq, -0.03*float64(i), rng)
+		nv.Analysis.Result.Display = disp
+		if _, err := e.st.SaveVisit(ctx, nv); err != nil {
 			t.Fatalf("save visit %d: %v", i, err)
 		}
 	}

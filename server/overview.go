@@ -59,7 +59,7 @@ var relativeBands = []struct {
 // courseBody lays out a course: the overview, the spectra of every visit,
 // the groups of other markers, the visits table and the notes that would
 // otherwise repeat under several charts.
-func courseBody(c trends.Course, displays map[int64]metrics.Display, canAdd bool) *web.CourseBody {
+func courseBody(c trends.Course, spectra map[int64][]metrics.Spectrum, canAdd bool) *web.CourseBody {
 	code := c.Patient.Code
 	page := &web.CourseBody{
 		Code:       code,
@@ -105,7 +105,7 @@ func courseBody(c trends.Course, displays map[int64]metrics.Display, canAdd bool
 			Conditions: courseConditions(v),
 		})
 	}
-	if opt, box, ok := spectraOverlay(c, displays, false); ok {
+	if opt, box, ok := spectraOverlay(c, spectra, false); ok {
 		box.Key = "spectra"
 		page.ChartData[box.Key] = opt
 		page.Overlay = box
@@ -331,11 +331,13 @@ const overlayMaxHz = 30
 // the latest (the latest drawn on top), each named by its date in the
 // legend; visits that cannot be compared dashed and grey, hidden until the
 // page's switch shows them (their names go to the page in the option's
-// lwApart list, which charts.js reads). ok is false when no visit has a
-// stored spectrum.
+// lwApart list, which charts.js reads). spectra are the visits' stored
+// spectra by visit ID (those of other states and regions may be left out:
+// courseSpectra reads the posterior eyes-closed ones only). ok is false
+// when no visit has a stored spectrum.
 //
 // A compact overlay (the printed summary) has its legend along the top.
-func spectraOverlay(c trends.Course, displays map[int64]metrics.Display, compact bool) (web.Option, *web.OverlayBox, bool) {
+func spectraOverlay(c trends.Course, spectra map[int64][]metrics.Spectrum, compact bool) (web.Option, *web.OverlayBox, bool) {
 	type drawn struct {
 		date   string
 		apart  bool
@@ -357,11 +359,11 @@ func spectraOverlay(c trends.Course, displays map[int64]metrics.Display, compact
 		}
 	}
 	for _, v := range c.Visits { // in date order
-		d, ok := displays[v.VisitID]
+		all, ok := spectra[v.VisitID]
 		if !ok {
 			continue
 		}
-		sp, ok := pickSpectrum(d.Spectra, ingest.EyesClosed)
+		sp, ok := pickSpectrum(all, ingest.EyesClosed)
 		if !ok || sp.Region != metrics.RegionPosterior {
 			continue
 		}

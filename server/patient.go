@@ -75,7 +75,7 @@ func (s *Server) course(r *http.Request, code string) (trends.Course, error) {
 	if err != nil {
 		return trends.Course{}, err
 	}
-	visits, err := s.st.PatientVisits(ctx, p.ID)
+	visits, err := s.st.CourseVisits(ctx, p.ID)
 	if err != nil {
 		return trends.Course{}, err
 	}
@@ -126,21 +126,15 @@ func (s *Server) visitFlags(r *http.Request, p store.Patient, v store.VisitRecor
 	return v.Flags, nil
 }
 
-// courseDisplays reads the stored display products of a course's visits
-// (a visit without any is left out).
-func (s *Server) courseDisplays(r *http.Request, c trends.Course) (map[int64]metrics.Display, error) {
-	out := map[int64]metrics.Display{}
+// courseSpectra reads the stored posterior eyes-closed spectra of a
+// course's visits, the only ones its overlay draws (a visit without one is
+// left out), in one query.
+func (s *Server) courseSpectra(r *http.Request, c trends.Course) (map[int64][]metrics.Spectrum, error) {
+	ids := make([]int64, 0, len(c.Visits))
 	for _, v := range c.Visits {
-		d, err := s.st.VisitDisplay(r.Context(), v.VisitID)
-		switch {
-		case errors.Is(err, store.ErrNotFound):
-			continue
-		case err != nil:
-			return nil, err
-		}
-		out[v.VisitID] = d
+		ids = append(ids, v.VisitID)
 	}
-	return out, nil
+	return s.st.OverlaySpectra(r.Context(), ids)
 }
 
 // coursePage shows a patient's course. The body is cached (cache.go); the
@@ -158,11 +152,11 @@ func (s *Server) coursePage(w http.ResponseWriter, r *http.Request) {
 		if err != nil {
 			return "", err
 		}
-		displays, err := s.courseDisplays(r, c)
+		spectra, err := s.courseSpectra(r, c)
 		if err != nil {
 			return "", err
 		}
-		return s.tpl.RenderCourseBody(courseBody(c, displays, canAdd))
+		return s.tpl.RenderCourseBody(courseBody(c, spectra, canAdd))
 	})
 	if err != nil {
 		s.fail(w, r, err)

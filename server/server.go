@@ -148,6 +148,9 @@ func New(cfg Config, st *store.Store, pipe *intake.Pipeline, opts ...Option) (*S
 	for _, o := range opts {
 		o(s)
 	}
+	// The cohort's kept entries judge comparability by this service's
+	// processing settings.
+	st.KeepCohortFor(s.settingsVersion, s.settingsHash)
 	s.auditor.st = st
 	var err error
 	if s.assets, err = web.LoadAssets(); err != nil {

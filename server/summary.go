@@ -22,18 +22,18 @@ func (s *Server) summaryPage(w http.ResponseWriter, r *http.Request) {
 		s.fail(w, r, err)
 		return
 	}
-	displays, err := s.courseDisplays(r, c)
+	spectra, err := s.courseSpectra(r, c)
 	if err != nil {
 		s.fail(w, r, err)
 		return
 	}
-	page := summaryView(c, displays, s.now())
+	page := summaryView(c, spectra, s.now())
 	page.Frame = s.frame(r, "Summary "+c.Patient.Code, "")
 	s.render(w, r, http.StatusOK, page)
 }
 
 // summaryView lays out the summary of a course.
-func summaryView(c trends.Course, displays map[int64]metrics.Display, now time.Time) *web.SummaryPage {
+func summaryView(c trends.Course, spectra map[int64][]metrics.Spectrum, now time.Time) *web.SummaryPage {
 	p := c.Patient
 	comparable := 0
 	for _, v := range c.Visits {
@@ -121,7 +121,7 @@ func summaryView(c trends.Course, displays map[int64]metrics.Display, now time.T
 			page.Rows[i].Basis = ""
 		}
 	}
-	if opt, box, ok := spectraOverlay(c, displays, true); ok {
+	if opt, box, ok := spectraOverlay(c, spectra, true); ok {
 		box.Key = "spectra"
 		page.ChartData[box.Key] = opt
 		page.Overlay = box

@@ -363,3 +363,126 @@ func BenchmarkCohortEntries5000(b *testing.B) {
 		}
 	}
 }
+
+// wantOverlay is what OverlaySpectra should give for a visit: its display
+// products' posterior eyes-closed spectra.
+func wantOverlay(tb testing.TB, s *Store, id int64) []metrics.Spectrum {
+	tb.Helper()
+	d, err := s.VisitDisplay(context.Background(), id)
+	if err != nil {
+		tb.Fatal(err)
+	}
+	var want []metrics.Spectrum
+	for _, sp := range d.Spectra {
+		if sp.State == ingest.EyesClosed && sp.Region == metrics.RegionPosterior {
+			want = append(want, sp)
+		}
+	}
+	return want
+}
+
+// OverlaySpectra gives each visit's posterior eyes-closed spectra as its
+// display products hold them, in one query, follows a reprocess, and
+// leaves out visits without them and unknown IDs; a database from before
+// migration 0006 gets them from its display products.
+func TestOverlaySpectra(t *testing.T) {
+	ctx := context.Background()
+	all, err := migrations.All()
+	if err != nil {
+		t.Fatal(err)
+	}
+	var before []migrations.Migration
+	for _, m := range all {
+		if m.Version < 6 {
+			before = append(before, m)
+		}
+	}
+	path := filepath.Join(t.TempDir(), "old.db")
+	old, err := openAt(path, before)
+	if err != nil {
+		t.Fatal(err)
+	}
+	var ids []int64
+	for i := 0; i < 4; i++ {
+		if i == 2 {
+			old.Close()
+			if old, err = Open(path, WithClock(fixedClock)); err != nil { // the last two after the migration
+				t.Fatal(err)
+			}
+		}
+		nv := sampleVisit("MC-SP1", fmt.Sprintf("202%d-01-01", i), []byte(fmt.Sprint("spectra ", i)), uint64(i))
+		if i == 3 {
+			nv.Analysis.Result.Display = metrics.Display{} // no spectra: null in the JSON
+		}
+		v, err := old.SaveVisit(ctx, nv)
+		if err != nil {
+			t.Fatal(err)
+		}
+		ids = append(ids, v.ID)
+	}
+	s := old
+	defer s.Close()
+	check := func(what string) {
+		t.Helper()
+		got, err := s.OverlaySpectra(ctx, append(slices.Clone(ids), 9999))
+		if err != nil {
+			t.Fatal(err)
+		}
+		if len(got) != 3 {
+			t.Fatalf("%s: spectra of %d visits, want 3 (the fourth has none, 9999 is no visit)", what, len(got))
+		}
+		for _, id := range ids[:3] {
+			if want := wantOverlay(t, s, id); len(want) != 1 || !reflect.DeepEqual(got[id], want) {
+				t.Errorf("%s: visit %d: %d spectra, want the %d of VisitDisplay", what, id, len(got[id]), len(want))
+			}
+		}
+	}
+	check("ingest and migration")
+	a := sampleAnalysis(77)
+	a.Result.Display.Spectra[0].PeakHz = 8.25
+	if err := s.ReplaceAnalysis(ctx, ids[0], a); err != nil {
+		t.Fatal(err)
+	}
+	check("reprocess")
+	if got, _ := s.OverlaySpectra(ctx, ids[:1]); len(got[ids[0]]) != 1 || got[ids[0]][0].PeakHz != 8.25 {
+		t.Errorf("after the reprocess: %+v, want the new peak 8.25 Hz", got[ids[0]])
+	}
+	if none, err := s.OverlaySpectra(ctx, nil); err != nil || len(none) != 0 {
+		t.Errorf("no IDs: %v, %v", none, err)
+	}
+}
+
+// CourseVisits are PatientVisits without the quality's window decisions.
+func TestCourseVisits(t *testing.T) {
+	s := mustOpen(t)
+	ctx := context.Background()
+	for i := 0; i < 3; i++ {
+		nv := sampleVisit("MC-CV1", fmt.Sprintf("202%d-01-01", i), []byte(fmt.Sprint("course ", i)), uint64(i))
+		nv.Analysis.Result.Quality.Windows = []metrics.Window{{Start: 0, End: 1, State: ingest.EyesClosed, Kept: true},
+			{Start: 1, End: 2, State: ingest.EyesClosed, Region: metrics.RegionFrontal, Reason: "slow waves"}}
+		if _, err := s.SaveVisit(ctx, nv); err != nil {
+			t.Fatal(err)
+		}
+	}
+	p, err := s.PatientByCode(ctx, "MC-CV1")
+	if err != nil {
+		t.Fatal(err)
+	}
+	full, err := s.PatientVisits(ctx, p.ID)
+	if err != nil {
+		t.Fatal(err)
+	}
+	got, err := s.CourseVisits(ctx, p.ID)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if len(full) != 3 || len(full[0].Quality.Windows) != 2 {
+		t.Fatalf("PatientVisits: %d visits, %d windows; want 3 and 2", len(full), len(full[0].Quality.Windows))
+	}
+	for i := range full {
+		full[i].Quality.Windows = nil
+	}
+	if !reflect.DeepEqual(got, full) {
+		t.Errorf("CourseVisits differ from PatientVisits without windows")
+	}
+}

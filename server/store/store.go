@@ -59,10 +59,13 @@ type Store struct {
 	// wrapWriter, when set by a test, wraps the writer of each recording
 	// file (to simulate a full disk).
 	wrapWriter func(io.Writer) io.Writer
-	// cohort are the settings the kept cohort entries are made for;
-	// keepEntries is set once the schema has their tables (cohort.go).
-	cohort      cohortSettings
-	keepEntries bool
+	// cohort are the settings the kept cohort entries are made for
+	// (cohort.go). current is set once every migration is applied: only
+	// then do writes keep the tables of migration 0006 (cohort entries,
+	// overlay spectra); the test hook openAt leaves it unset to write as an
+	// older release did.
+	cohort  cohortSettings
+	current bool
 }
 
 // Option configures Open.
@@ -116,7 +119,7 @@ func Open(path string, opts ...Option) (*Store, error) {
 	}
 	cur := metrics.Current()
 	s.KeepCohortFor(cur.Version, cur.Hash())
-	s.keepEntries = true
+	s.current = true
 	r, err := sql.Open("sqlite", dsn(path, true))
 	if err != nil {
 		w.Close()
@@ -222,7 +225,7 @@ func (s *Store) inTx(ctx context.Context, f func(tx *sql.Tx) error) error {
 		tx.Rollback()
 		return err
 	}
-	if s.keepEntries {
+	if s.current {
 		if err := s.refreshEntries(ctx, tx); err != nil {
 			tx.Rollback()
 			return err

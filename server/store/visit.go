@@ -121,7 +121,7 @@ func (s *Store) ReplaceAnalysis(ctx context.Context, visitID int64, a Analysis) 
 			}
 			return err
 		}
-		for _, table := range []string{"markers", "flags", "conditions", "display_products"} {
+		for _, table := range []string{"markers", "flags", "conditions", "display_products", "overlay_spectra"} {
 			if _, err := tx.ExecContext(ctx, `DELETE FROM `+table+` WHERE visit_id = ?`, visitID); err != nil {
 				return fmt.Errorf("clear %s: %w", table, err)
 			}
@@ -299,6 +299,16 @@ func (s *Store) writeAnalysis(ctx context.Context, tx *sql.Tx, visitID int64, a 
 		visitID, string(dj)); err != nil {
 		return fmt.Errorf("display: %w", err)
 	}
+	if sp := overlaySpectra(res.Display); len(sp) > 0 && s.current {
+		sj, err := json.Marshal(sp)
+		if err != nil {
+			return fmt.Errorf("overlay spectra: %w", err)
+		}
+		if _, err := tx.ExecContext(ctx, `INSERT INTO overlay_spectra (visit_id, spectra_json) VALUES (?, ?)`,
+			visitID, string(sj)); err != nil {
+			return fmt.Errorf("overlay spectra: %w", err)
+		}
+	}
 	return nil
 }
 
@@ -320,7 +330,7 @@ func (s *Store) RecordingKnown(ctx context.Context, sha string) (Recording, bool
 // Visit returns the visit with everything analysis made of it, or
 // ErrNotFound.
 func (s *Store) Visit(ctx context.Context, id int64) (VisitRecord, error) {
-	vs, err := s.loadVisits(ctx, "v.id = ?", nil, id)
+	vs, err := s.loadVisits(ctx, "v.id = ?", nil, true, id)
 	if err != nil {
 		return VisitRecord{}, err
 	}
@@ -333,7 +343,16 @@ func (s *Store) Visit(ctx context.Context, id int64) (VisitRecord, error) {
 // PatientVisits returns the patient's visits ordered by date (an empty list
 // for a patient without visits or an unknown ID).
 func (s *Store) PatientVisits(ctx context.Context, patientID int64) ([]VisitRecord, error) {
-	return s.loadVisits(ctx, "v.patient_id = ?", nil, patientID)
+	return s.loadVisits(ctx, "v.patient_id = ?", nil, true, patientID)
+}
+
+// CourseVisits is PatientVisits without the per-window decisions of each
+// visit's quality (Quality.Windows is nil): a patient's course summarises
+// the quality and never reads them, and they are about four fifths of the
+// quality JSON, so a 40-visit course decodes a fifth as much. SQLite drops
+// them (json_remove) before the JSON reaches Go.
+func (s *Store) CourseVisits(ctx context.Context, patientID int64) ([]VisitRecord, error) {
+	return s.loadVisits(ctx, "v.patient_id = ?", nil, false, patientID)
 }
 
 // VisitDisplay returns the display products of a visit, or ErrNotFound.
@@ -351,6 +370,56 @@ func (s *Store) VisitDisplay(ctx context.Context, id int64) (metrics.Display, er
 		return metrics.Display{}, fmt.Errorf("store: display of visit %d: %w", id, err)
 	}
 	return d, nil
+}
+
+// OverlaySpectra returns the stored posterior eyes-closed spectra of the
+// visits (normally one each, in display order), by visit ID; a visit
+// without one is left out. One query over overlay_spectra (migration 0006),
+// which holds a copy of those spectra beside the display products: the
+// course overlays them for 40 visits without parsing 40 visits' traces.
+func (s *Store) OverlaySpectra(ctx context.Context, ids []int64) (map[int64][]metrics.Spectrum, error) {
+	out := make(map[int64][]metrics.Spectrum, len(ids))
+	if len(ids) == 0 {
+		return out, nil
+	}
+	list, err := json.Marshal(ids)
+	if err != nil {
+		return nil, fmt.Errorf("store: spectra: %w", err)
+	}
+	rows, err := s.r.QueryContext(ctx, `SELECT visit_id, spectra_json FROM overlay_spectra
+		WHERE visit_id IN (SELECT value FROM json_each(?))`, string(list))
+	if err != nil {
+		return nil, fmt.Errorf("store: spectra: %w", err)
+	}
+	defer rows.Close()
+	for rows.Next() {
+		var id int64
+		var js string
+		if err := rows.Scan(&id, &js); err != nil {
+			return nil, fmt.Errorf("store: spectra: %w", err)
+		}
+		var sp []metrics.Spectrum
+		if err := json.Unmarshal([]byte(js), &sp); err != nil {
+			return nil, fmt.Errorf("store: spectra of visit %d: %w", id, err)
+		}
+		out[id] = sp
+	}
+	if err := rows.Err(); err != nil {
+		return nil, fmt.Errorf("store: spectra: %w", err)
+	}
+	return out, nil
+}
+
+// overlaySpectra are the spectra of d that overlay_spectra keeps: the
+// posterior eyes-closed ones, in order.
+func overlaySpectra(d metrics.Display) []metrics.Spectrum {
+	var out []metrics.Spectrum
+	for _, sp := range d.Spectra {
+		if sp.State == ingest.EyesClosed && sp.Region == metrics.RegionPosterior {
+			out = append(out, sp)
+		}
+	}
+	return out
 }
 
 // AllVisitRecords returns every patient (ordered by code) with its visits
@@ -420,7 +489,7 @@ func (s *Store) courses(ctx context.Context, patientWhere, visitWhere string, ma
 	if len(out) == 0 {
 		return nil, nil
 	}
-	vs, err := s.loadVisits(ctx, visitWhere, markerNames, args...)
+	vs, err := s.loadVisits(ctx, visitWhere, markerNames, true, args...)
 	if err != nil {
 		return nil, err
 	}
@@ -516,8 +585,10 @@ func (s *Store) VisitSource(ctx context.Context, id int64) (VisitSource, error) 
 
 // loadVisits reads the visits matching where (a condition on visits v) with
 // their recordings, conditions, markers and flags: four queries in all,
-// assembled by visit ID. Visits are ordered by patient then date.
-func (s *Store) loadVisits(ctx context.Context, where string, markerNames []string, args ...any) ([]VisitRecord, error) {
+// assembled by visit ID. Visits are ordered by patient then date. With
+// markerNames only markers of those names are read; without windows each
+// quality's Windows are left out.
+func (s *Store) loadVisits(ctx context.Context, where string, markerNames []string, windows bool, args ...any) ([]VisitRecord, error) {
 	// One read transaction: the four queries see one snapshot (WAL), so a
 	// reprocess committing between them cannot mix two analyses.
 	tx, err := s.r.BeginTx(ctx, nil)
@@ -525,10 +596,14 @@ func (s *Store) loadVisits(ctx context.Context, where string, markerNames []stri
 		return nil, fmt.Errorf("store: visits: %w", err)
 	}
 	defer tx.Rollback()
+	quality := `c.quality_json`
+	if !windows {
+		quality = `json_remove(c.quality_json, '$.windows')`
+	}
 	rows, err := tx.QueryContext(ctx, `
 		SELECT v.id, v.patient_id, v.visit_date, v.age_years, v.age_known, v.context,
 		       coalesce(c.settings_version, ''), coalesce(c.settings_hash, ''),
-		       coalesce(c.conditions_json, '{}'), coalesce(c.quality_json, '{}')
+		       coalesce(c.conditions_json, '{}'), coalesce(`+quality+`, '{}')
 		FROM visits v LEFT JOIN conditions c ON c.visit_id = v.id
 		WHERE `+where+` ORDER BY v.patient_id, v.visit_date`, args...)
 	if err != nil {

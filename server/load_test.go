@@ -83,19 +83,22 @@ func loadVisit(tpl store.VisitRecord, code string, birth int, date string, seq i
 
 // buildLoadData inserts the 40-visit patient LW-LOAD40 and 5,000 cohort
 // patients (1 to 4 annual visits each) directly through the store.
-func buildLoadData(t *testing.T, e *env) { buildLoadDataVisits(t, e, 0) }
+func buildLoadData(t *testing.T, e *env) { buildLoadDataVisits(t, e, 0, false) }
 
 // buildLoadDataVisits is buildLoadData with every cohort patient given
-// exactly perPatient annual visits (0: 1 to 4 at random).
-func buildLoadDataVisits(t *testing.T, e *env, perPatient int) {
+// exactly perPatient annual visits (0: 1 to 4 at random) and, with
+// display, the 40 visits carrying the template's spectra and traces as
+// ingested visits do (the course page then overlays 40 spectra).
+func buildLoadDataVisits(t *testing.T, e *env, perPatient int, display bool) {
 	t.Helper()
 	ctx := context.Background()
 	tpl := templateRecord(t, e)
-	// The 40 visits carry the template's spectra and traces, as ingested
-	// visits do: the course page reads their spectra.
-	disp, err := e.st.VisitDisplay(ctx, tpl.Visit.ID)
-	if err != nil {
-		t.Fatal(err)
+	var disp metrics.Display
+	if display {
+		var err error
+		if disp, err = e.st.VisitDisplay(ctx, tpl.Visit.ID); err != nil {
+			t.Fatal(err)
+		}
 	}
 	rng := rand.New(rand.NewPCG(6, 40))
 	seq := 0

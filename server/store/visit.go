@@ -423,10 +423,9 @@ func overlaySpectra(d metrics.Display) []metrics.Spectrum {
 }
 
 // AllVisitRecords returns every patient (ordered by code) with its visits
-// (ordered by date), for the cohort page and the export. It runs five
-// queries whatever the number of patients. With marker names given, only
-// markers of those names are loaded (the cohort page needs a few of the
-// ~40 per visit).
+// (ordered by date), for the export. It runs five queries whatever the
+// number of patients. With marker names given, only markers of those names
+// are loaded. The cohort page reads CohortEntries instead.
 func (s *Store) AllVisitRecords(ctx context.Context, markerNames ...string) ([]PatientCourse, error) {
 	return s.courses(ctx, "1", "1", markerNames)
 }

@@ -101,18 +101,14 @@ END;
 -- means parsing the whole document, the other regions' and states' spectra
 -- and the trace excerpts with it (40 visits: about 150 ms in Go, 30 ms in
 -- SQLite's json_extract). So each visit's posterior eyes-closed spectra
--- (normally one; a JSON list of metrics.Spectrum in display order) are
--- also kept here, written with the display products. display_json keeps
--- them too, for the visit screen; this copy is about a twentieth of a
--- visit's display JSON.
+-- (normally one) are also kept here, written with the display products, in
+-- the store's small binary form (format 1: server/store/spectra.go), which
+-- reads without a decimal parse of every number. An empty list says the
+-- visit has none. display_json keeps them too, for the visit screen; this
+-- copy is about a twentieth of a visit's display products. Visits stored
+-- before this migration get their row the first time the course reads it.
 CREATE TABLE overlay_spectra (
-    visit_id     INTEGER PRIMARY KEY REFERENCES visits (id) ON DELETE CASCADE,
-    spectra_json TEXT NOT NULL CHECK (json_valid(spectra_json) AND json_type(spectra_json) = 'array')
+    visit_id INTEGER PRIMARY KEY REFERENCES visits (id) ON DELETE CASCADE,
+    format   INTEGER NOT NULL CHECK (format > 0),
+    spectra  BLOB NOT NULL
 ) STRICT;
-
-INSERT INTO overlay_spectra (visit_id, spectra_json)
-SELECT d.visit_id, json_group_array(json(e.value))
-FROM display_products d, json_each(d.display_json, '$.spectra') e
-WHERE json_type(d.display_json, '$.spectra') = 'array'
-  AND json_extract(e.value, '$.state') = 'closed' AND json_extract(e.value, '$.region') = 'posterior'
-GROUP BY d.visit_id;

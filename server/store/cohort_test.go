@@ -5,6 +5,7 @@ import (
 	"database/sql"
 	"errors"
 	"fmt"
+	"math"
 	"math/rand/v2"
 	"path/filepath"
 	"reflect"
@@ -438,6 +439,15 @@ func TestOverlaySpectra(t *testing.T) {
 		}
 	}
 	check("ingest and migration")
+	var kept int
+	s.r.QueryRow(`SELECT count(*) FROM overlay_spectra WHERE format = ?`, spectraFormat).Scan(&kept)
+	if kept != 4 {
+		t.Errorf("%d overlay rows after the first read, want 4 (the older two filled in, one an empty list)", kept)
+	}
+	if _, err := s.w.Exec(`UPDATE overlay_spectra SET spectra = x'05' WHERE visit_id = ?`, ids[1]); err != nil {
+		t.Fatal(err)
+	}
+	check("a corrupt row")
 	a := sampleAnalysis(77)
 	a.Result.Display.Spectra[0].PeakHz = 8.25
 	if err := s.ReplaceAnalysis(ctx, ids[0], a); err != nil {
@@ -484,5 +494,36 @@ func TestCourseVisits(t *testing.T) {
 	}
 	if !reflect.DeepEqual(got, full) {
 		t.Errorf("CourseVisits differ from PatientVisits without windows")
+	}
+}
+
+// The overlay spectra's binary form gives back what it was given, nil
+// series nil, and refuses bytes that are not one without allocating from a
+// declared count.
+func TestSpectraCodec(t *testing.T) {
+	a := sampleAnalysis(3).Result.Display.Spectra
+	cases := [][]metrics.Spectrum{nil, a, {{State: ingest.EyesClosed, Region: "posterior", Freqs: []float64{}, PeakHz: math.Inf(1)}}}
+	for i, c := range cases {
+		b := appendSpectra(nil, c)
+		got, err := decodeSpectra(b)
+		if err != nil || !reflect.DeepEqual(got, c) {
+			t.Errorf("case %d: %v, round trip differs", i, err)
+		}
+		for n := 0; n < len(b); n++ {
+			if _, err := decodeSpectra(b[:n]); !errors.Is(err, errSpectra) {
+				t.Fatalf("case %d cut at %d: %v, want errSpectra", i, n, err)
+			}
+		}
+		if _, err := decodeSpectra(append(slices.Clone(b), 0)); !errors.Is(err, errSpectra) {
+			t.Errorf("case %d with a trailing byte: %v", i, err)
+		}
+	}
+	// One spectrum declaring 2^40 frequencies.
+	huge := []byte{1, 1, 'c', 1, 'p', 0x81, 0x80, 0x80, 0x80, 0x80, 0x20}
+	if _, err := decodeSpectra(huge); !errors.Is(err, errSpectra) {
+		t.Errorf("huge list: %v, want errSpectra", err)
+	}
+	if _, err := decodeSpectra([]byte{0xff, 0xff, 0xff, 0x0f}); !errors.Is(err, errSpectra) {
+		t.Errorf("huge count: %v, want errSpectra", err)
 	}
 }

@@ -299,13 +299,8 @@ func (s *Store) writeAnalysis(ctx context.Context, tx *sql.Tx, visitID int64, a 
 		visitID, string(dj)); err != nil {
 		return fmt.Errorf("display: %w", err)
 	}
-	if sp := overlaySpectra(res.Display); len(sp) > 0 && s.current {
-		sj, err := json.Marshal(sp)
-		if err != nil {
-			return fmt.Errorf("overlay spectra: %w", err)
-		}
-		if _, err := tx.ExecContext(ctx, `INSERT INTO overlay_spectra (visit_id, spectra_json) VALUES (?, ?)`,
-			visitID, string(sj)); err != nil {
+	if s.current {
+		if err := writeOverlay(ctx, tx, visitID, res.Display); err != nil {
 			return fmt.Errorf("overlay spectra: %w", err)
 		}
 	}
@@ -370,56 +365,6 @@ func (s *Store) VisitDisplay(ctx context.Context, id int64) (metrics.Display, er
 		return metrics.Display{}, fmt.Errorf("store: display of visit %d: %w", id, err)
 	}
 	return d, nil
-}
-
-// OverlaySpectra returns the stored posterior eyes-closed spectra of the
-// visits (normally one each, in display order), by visit ID; a visit
-// without one is left out. One query over overlay_spectra (migration 0006),
-// which holds a copy of those spectra beside the display products: the
-// course overlays them for 40 visits without parsing 40 visits' traces.
-func (s *Store) OverlaySpectra(ctx context.Context, ids []int64) (map[int64][]metrics.Spectrum, error) {
-	out := make(map[int64][]metrics.Spectrum, len(ids))
-	if len(ids) == 0 {
-		return out, nil
-	}
-	list, err := json.Marshal(ids)
-	if err != nil {
-		return nil, fmt.Errorf("store: spectra: %w", err)
-	}
-	rows, err := s.r.QueryContext(ctx, `SELECT visit_id, spectra_json FROM overlay_spectra
-		WHERE visit_id IN (SELECT value FROM json_each(?))`, string(list))
-	if err != nil {
-		return nil, fmt.Errorf("store: spectra: %w", err)
-	}
-	defer rows.Close()
-	for rows.Next() {
-		var id int64
-		var js string
-		if err := rows.Scan(&id, &js); err != nil {
-			return nil, fmt.Errorf("store: spectra: %w", err)
-		}
-		var sp []metrics.Spectrum
-		if err := json.Unmarshal([]byte(js), &sp); err != nil {
-			return nil, fmt.Errorf("store: spectra of visit %d: %w", id, err)
-		}
-		out[id] = sp
-	}
-	if err := rows.Err(); err != nil {
-		return nil, fmt.Errorf("store: spectra: %w", err)
-	}
-	return out, nil
-}
-
-// overlaySpectra are the spectra of d that overlay_spectra keeps: the
-// posterior eyes-closed ones, in order.
-func overlaySpectra(d metrics.Display) []metrics.Spectrum {
-	var out []metrics.Spectrum
-	for _, sp := range d.Spectra {
-		if sp.State == ingest.EyesClosed && sp.Region == metrics.RegionPosterior {
-			out = append(out, sp)
-		}
-	}
-	return out
 }
 
 // AllVisitRecords returns every patient (ordered by code) with its visits

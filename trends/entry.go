@@ -20,7 +20,8 @@ import (
 // works it out from the entries at every build, so that a change to a
 // control's visits, which may move every verdict, can never leave a kept
 // verdict behind. That second part is a few small regressions per patient
-// (about 20 ms for 5,000 patients; BenchmarkCohortFromEntries).
+// (about 50 ms for 5,000 patients on the shared 2-core machine;
+// BenchmarkCohortFromEntries5000).
 
 // EntryOptions are what SummarisePatient needs beside the patient.
 type EntryOptions struct {

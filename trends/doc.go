@@ -99,6 +99,13 @@
 //	CohortRow{PatientID; Code; Group; Cohort; FollowUpMonths; Visits; ComparableVisits; FirstVisit;
 //	       LastVisit; NextDue; Overdue; DaysOverdue; LatestFlags; Flagged; Markers []MarkerDirection; ReliableChange}
 //
+// BuildCohort is the two halves below; the store keeps the first per patient
+// (entry.go, entrycodec.go) so that the cohort screen never reads every visit:
+//
+//	SummarisePatient(p clinic.Patient, visits []clinic.VisitRecord, opt EntryOptions) CohortEntry // no norms, no today
+//	CohortFromEntries(entries []CohortEntry, opt CohortOptions) (Cohort, error)                 // norms and today
+//	AppendEntry(dst []byte, e *CohortEntry) []byte; DecodeEntry(b []byte) (CohortEntry, error) // EntryFormat
+//
 // # Local ranges (local.go)
 //
 //	BuildLocalRanges(patients []clinic.PatientCourse, opt LocalOptions) *LocalRanges

@@ -54,7 +54,7 @@ func init() {
 				}
 				if !r.OK() {
 					for _, p := range r.Problems {
-						fmt.Fprintln(e.stdout, oneLine(p.String()))
+						fmt.Fprintln(e.stdout, lineBreaks.Replace(p.String()))
 					}
 					return errProblems{n: len(r.Problems), path: *db}
 				}
@@ -64,6 +64,9 @@ func init() {
 		},
 	})
 }
+
+// lineBreaks keeps a problem on its line whatever a code or path holds.
+var lineBreaks = strings.NewReplacer("\r", " ", "\n", " ")
 
 // printCheckSummary says what a clean check looked at.
 func printCheckSummary(w io.Writer, db, data string, r *store.Report, took time.Duration) {

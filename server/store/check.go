@@ -143,9 +143,10 @@ func (r *Report) add(check, where, format string, args ...any) {
 //     applied under its own name, and none is recorded that it does not know;
 //   - recordings: every recording row's file is in the data folder, with
 //     the stored size and SHA-256 (each file re-read and hashed);
-//   - visits: every visit has a recording and an analysis, and its
-//     conditions and markers come from a settings version this program knows,
-//     with that version's hash.
+//   - visits: every visit has a recording and an analysis, its conditions
+//     and markers come from a settings version this program knows, with that
+//     version's hash, and its markers from the same settings as its
+//     conditions (a course never mixes versions).
 //
 // A check that cannot run to its end (a table unreadable in a damaged
 // file) is itself a problem, "check stopped", and the other checks still run. The error is for a check
@@ -364,6 +365,9 @@ func (s *Store) checkVisits(ctx context.Context, r *Report) error {
 		return err
 	}
 	judge := settingsJudge{}
+	// analysis holds each analysed visit's settings pair, which all its
+	// markers must repeat (0001_store.sql, conditions.settings_version).
+	analysis := map[int64][2]string{}
 	rows, err := s.r.QueryContext(ctx, `
 		SELECT v.id, coalesce(p.code, ''),
 		       (SELECT count(*) FROM recordings WHERE visit_id = v.id),
@@ -393,6 +397,7 @@ func (s *Store) checkVisits(ctx context.Context, r *Report) error {
 			r.add(CheckVisits, where, "no analysis stored (no conditions row)")
 			continue
 		}
+		analysis[id] = [2]string{version, hash}
 		if p := judge.problem(version, hash); p != "" {
 			r.add(CheckVisits, where, "conditions made by %s", p)
 		} else {
@@ -425,6 +430,11 @@ func (s *Store) checkVisits(ctx context.Context, r *Report) error {
 		}
 		if p := judge.problem(version, hash); p != "" {
 			r.add(CheckVisits, visitWhere(id, code), "%d markers made by %s", n, p)
+			continue
+		}
+		if c, ok := analysis[id]; ok && c != [2]string{version, hash} {
+			r.add(CheckVisits, visitWhere(id, code), "%d markers made by settings version %s (hash %s), its conditions by version %s (hash %s)",
+				n, version, short(hash), c[0], short(c[1]))
 		}
 	}
 	return mrows.Err()

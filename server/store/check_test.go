@@ -170,6 +170,10 @@ func TestCheckFindsEachProblem(t *testing.T) {
 			rawExec(t, path, `UPDATE markers SET settings_hash = '`+v1Hash+`' WHERE visit_id = 1 AND name = 'pdr_frequency'`)
 		}, []string{"visit: visit 1 (patient CK-001): 6 markers made by settings version 2 with hash " + v1Hash[:12] +
 			", not that version's hash " + v2Hash[:12]}},
+		{"markers and conditions of different known versions", func(t *testing.T, path string, c [2][]byte) {
+			rawExec(t, path, `UPDATE markers SET settings_version = '1', settings_hash = '`+v1Hash+`' WHERE visit_id = 1 AND name = 'rel_beta'`)
+		}, []string{"visit: visit 1 (patient CK-001): 6 markers made by settings version 1 (hash " + v1Hash[:12] +
+			"), its conditions by version 2 (hash " + v2Hash[:12] + ")"}},
 		{"analysis missing", func(t *testing.T, path string, c [2][]byte) {
 			rawExec(t, path, `DELETE FROM conditions WHERE visit_id = 1`)
 		}, []string{"visit: visit 1 (patient CK-001): no analysis stored"}},

@@ -70,7 +70,7 @@ func TestHelpOfEveryCommand(t *testing.T) {
 			t.Errorf("markers --help does not explain %s", m)
 		}
 	}
-	for _, db := range []string{"ingest", "reprocess", "export", "backup", "user", "serve"} {
+	for _, db := range []string{"ingest", "reprocess", "export", "backup", "check", "user", "serve"} {
 		_, out, _ := run(t, "", db, "--help")
 		if !strings.Contains(out, "-db FILE") || !strings.Contains(out, `default "longwave.db"`) {
 			t.Errorf("%s --help: no --db FILE defaulting to longwave.db", db)

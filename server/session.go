@@ -30,8 +30,10 @@ func sessionFrom(ctx context.Context) (store.Session, bool) {
 }
 
 // sessionMemo is how long a session found in the store is believed without
-// asking the store again. Sign-out through the service forgets it at once;
-// a user disabled or changed from the command line loses access within it.
+// asking the store again. Sign-out, disabling a user, resetting a password
+// and changing one's own password through the service forget it at once;
+// a user disabled or reset from the command line (another process) loses
+// access within it.
 const sessionMemo = 2 * time.Second
 
 // sessionMemoMax bounds the memo; past it the memo starts afresh.
@@ -70,6 +72,20 @@ func (c *sessionCache) put(token string, sess store.Session, now time.Time) {
 func (c *sessionCache) forget(token string) {
 	c.mu.Lock()
 	delete(c.m, token)
+	c.mu.Unlock()
+}
+
+// forgetUser drops every remembered session of a user, so that the next
+// request of any of them asks the store (after a disable, a reset or a
+// password change ended them there). The memo is small (sessionMemoMax),
+// so walking it is cheap.
+func (c *sessionCache) forgetUser(id int64) {
+	c.mu.Lock()
+	for token, e := range c.m {
+		if e.sess.User.ID == id {
+			delete(c.m, token)
+		}
+	}
 	c.mu.Unlock()
 }
 

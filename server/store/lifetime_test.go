@@ -46,6 +46,10 @@ func TestPasswordRules(t *testing.T) {
 		{"dr-vale", RoleClinician, "bcdefghij", "consecutive"},
 		{"dr-vale", RoleClinician, "98765432", "consecutive"},
 		{"dr-vale", RoleClinician, "Dr-Vale-of-fen", "user name"},
+		{"amy", RoleClinician, "amy-of-the-fen", "user name"},
+		{"amy", RoleClinician, "fen-2024-AMY", "user name"},
+		{"amy", RoleClinician, "dreamy-lagoon", ""}, // a short name inside a word
+		{"annika", RoleClinician, "xannikax-fen", "user name"},
 		{"dr-vale", RoleClinician, "my-longwave-key", "name of this service"},
 		{"dr-vale", RoleClinician, "correct horse battery", ""},
 	} {
@@ -385,7 +389,8 @@ func TestAccountErrorWords(t *testing.T) {
 }
 
 // TestGeneratePassword: generated passwords have the stated length and
-// alphabet, pass the rules for an admin, and differ from each other.
+// alphabet, pass the rules for an admin named "abc", and differ from each
+// other.
 func TestGeneratePassword(t *testing.T) {
 	seen := map[string]bool{}
 	for range 50 {
@@ -396,7 +401,7 @@ func TestGeneratePassword(t *testing.T) {
 		if len(pw) != GeneratedPasswordLength || strings.Trim(pw, generatedAlphabet) != "" {
 			t.Errorf("generated %q: want %d characters of the alphabet", pw, GeneratedPasswordLength)
 		}
-		if err := CheckNewPassword("abc", RoleAdmin, pw); err != nil || strings.Contains(strings.ToLower(pw), "abc") {
+		if err := CheckNewPassword("abc", RoleAdmin, pw); err != nil {
 			t.Errorf("generated %q breaks a rule: %v", pw, err)
 		}
 		if seen[pw] {

@@ -43,6 +43,9 @@ const (
 	// maxPatternUnit is the longest unit whose repetition ("abab…",
 	// "123123…") is refused.
 	maxPatternUnit = 4
+	// minNameAnywhere is the length from which a user name is refused
+	// anywhere in a password; a shorter one only as a word of its own.
+	minNameAnywhere = 5
 	// serviceName is the context word NIST names first: the service's own.
 	serviceName = "longwave"
 )
@@ -109,13 +112,39 @@ func CheckNewPassword(name, role, password string) error {
 	if sequential(lower) {
 		return passwordError("is a run of consecutive characters")
 	}
-	if ln := strings.ToLower(name); utf8.RuneCountInString(ln) >= 3 && strings.Contains(lower, ln) {
+	if holdsName(lower, strings.ToLower(name)) {
 		return passwordError("may not hold the user name")
 	}
 	if strings.Contains(lower, serviceName) {
 		return passwordError("may not hold the name of this service")
 	}
 	return nil
+}
+
+// holdsName reports whether a lower-cased password holds the lower-cased
+// user name: anywhere when the name has minNameAnywhere characters or more,
+// else as a word of its own (not inside a longer run of letters, so "amy"
+// is found in "amy-2024" but not in "dreamy-lagoon").
+func holdsName(lower, name string) bool {
+	if utf8.RuneCountInString(name) < 3 {
+		return false
+	}
+	if utf8.RuneCountInString(name) >= minNameAnywhere {
+		return strings.Contains(lower, name)
+	}
+	for i := 0; ; {
+		j := strings.Index(lower[i:], name)
+		if j < 0 {
+			return false
+		}
+		start, end := i+j, i+j+len(name)
+		before, _ := utf8.DecodeLastRuneInString(lower[:start])
+		after, _ := utf8.DecodeRuneInString(lower[end:])
+		if (start == 0 || !unicode.IsLetter(before)) && (end == len(lower) || !unicode.IsLetter(after)) {
+			return true
+		}
+		i = start + 1
+	}
 }
 
 // commonPasswordsText is the embedded list, written from memory for

@@ -45,9 +45,22 @@ type memoSession struct {
 }
 
 // sessionCache remembers recently checked sessions by cookie token.
+//
+// A request that read its session from the store just before a disable (or
+// reset, or sign-out) ended it must not put it back into the memo after
+// the forget: each forget moves the epoch on, and put keeps a session only
+// when the epoch is still the one seen before the store was asked.
 type sessionCache struct {
-	mu sync.Mutex
-	m  map[string]memoSession
+	mu    sync.Mutex
+	m     map[string]memoSession
+	epoch uint64
+}
+
+// begin returns the epoch to hand to put after asking the store.
+func (c *sessionCache) begin() uint64 {
+	c.mu.Lock()
+	defer c.mu.Unlock()
+	return c.epoch
 }
 
 func (c *sessionCache) get(token string, now time.Time) (store.Session, bool) {
@@ -60,9 +73,12 @@ func (c *sessionCache) get(token string, now time.Time) (store.Session, bool) {
 	return e.sess, true
 }
 
-func (c *sessionCache) put(token string, sess store.Session, now time.Time) {
+func (c *sessionCache) put(token string, sess store.Session, now time.Time, epoch uint64) {
 	c.mu.Lock()
 	defer c.mu.Unlock()
+	if epoch != c.epoch {
+		return // something was forgotten since the store was asked
+	}
 	if c.m == nil || len(c.m) >= sessionMemoMax {
 		c.m = map[string]memoSession{}
 	}
@@ -72,6 +88,7 @@ func (c *sessionCache) put(token string, sess store.Session, now time.Time) {
 func (c *sessionCache) forget(token string) {
 	c.mu.Lock()
 	delete(c.m, token)
+	c.epoch++
 	c.mu.Unlock()
 }
 
@@ -86,6 +103,7 @@ func (c *sessionCache) forgetUser(id int64) {
 			delete(c.m, token)
 		}
 	}
+	c.epoch++
 	c.mu.Unlock()
 }
 
@@ -99,11 +117,12 @@ func (s *Server) lookupSession(r *http.Request) (store.Session, string, error) {
 	if sess, ok := s.sessions.get(c.Value, now); ok {
 		return sess, c.Value, nil
 	}
+	epoch := s.sessions.begin()
 	sess, err := s.st.SessionByToken(r.Context(), c.Value)
 	if err != nil {
 		return store.Session{}, "", err
 	}
-	s.sessions.put(c.Value, sess, now)
+	s.sessions.put(c.Value, sess, now, epoch)
 	return sess, c.Value, nil
 }
 

@@ -7,6 +7,8 @@ import (
 	"net/url"
 	"regexp"
 	"strings"
+	"sync"
+	"sync/atomic"
 	"testing"
 	"time"
 
@@ -262,18 +264,77 @@ func TestPasswordLinkOnEveryScreen(t *testing.T) {
 }
 
 // TestForgetUser: the memo forgets every session of one user and keeps
-// the others'.
+// the others'; a session read from the store before a forget is not put
+// back after it.
 func TestForgetUser(t *testing.T) {
 	var c sessionCache
 	now := fixedNow
 	exp := now.Add(time.Hour)
-	c.put("a1", store.Session{User: store.User{ID: 1}, Expires: exp}, now)
-	c.put("a2", store.Session{User: store.User{ID: 1}, Expires: exp}, now)
-	c.put("b1", store.Session{User: store.User{ID: 2}, Expires: exp}, now)
+	c.put("a1", store.Session{User: store.User{ID: 1}, Expires: exp}, now, c.begin())
+	c.put("a2", store.Session{User: store.User{ID: 1}, Expires: exp}, now, c.begin())
+	c.put("b1", store.Session{User: store.User{ID: 2}, Expires: exp}, now, c.begin())
 	c.forgetUser(1)
 	for tok, want := range map[string]bool{"a1": false, "a2": false, "b1": true} {
 		if _, ok := c.get(tok, now); ok != want {
 			t.Errorf("session %s remembered %v, want %v", tok, ok, want)
 		}
+	}
+	// A request asked the store (epoch seen), then the user was disabled,
+	// then the request goes to put what it read: it must not stick.
+	seen := c.begin()
+	c.forgetUser(1)
+	c.put("a3", store.Session{User: store.User{ID: 1}, Expires: exp}, now, seen)
+	if _, ok := c.get("a3", now); ok {
+		t.Error("a session read before the forget was remembered after it")
+	}
+	c.put("a4", store.Session{User: store.User{ID: 1}, Expires: exp}, now, c.begin())
+	if _, ok := c.get("a4", now); !ok {
+		t.Error("a session read after the forget was not remembered")
+	}
+}
+
+// TestDisableUnderLoad: while a user's session asks the API from several
+// goroutines, an admin disables the user; every request sent after the
+// disable answered is refused (run it with -race).
+func TestDisableUnderLoad(t *testing.T) {
+	e := newEnv(t, "", Config{})
+	vale := e.signedIn(clinicianName)
+	admin := e.signedIn(adminName)
+	var (
+		disabled atomic.Bool
+		after    atomic.Int64
+		wg       sync.WaitGroup
+		stale    atomic.Int64
+	)
+	for range 4 {
+		wg.Add(1)
+		go func() {
+			defer wg.Done()
+			for after.Load() < 200 {
+				was := disabled.Load()
+				req, _ := http.NewRequest(http.MethodGet, vale.base+"/api/v1/patients", nil)
+				res, err := vale.c.Do(req)
+				if err != nil {
+					t.Error(err)
+					return
+				}
+				res.Body.Close()
+				if was {
+					after.Add(1)
+					if res.StatusCode != http.StatusUnauthorized {
+						stale.Add(1)
+					}
+				}
+			}
+		}()
+	}
+	time.Sleep(50 * time.Millisecond)
+	if status, _, _ := admin.postForm("/users/"+clinicianName+"/disable", url.Values{"csrf": {admin.csrf}}); status != http.StatusOK {
+		t.Fatalf("disable: %d", status)
+	}
+	disabled.Store(true)
+	wg.Wait()
+	if n := stale.Load(); n > 0 {
+		t.Errorf("%d of %d requests sent after the disable were answered", n, after.Load())
 	}
 }

@@ -338,3 +338,19 @@ func TestDisableUnderLoad(t *testing.T) {
 		t.Errorf("%d of %d requests sent after the disable were answered", n, after.Load())
 	}
 }
+
+// TestAuditWords: every audit action has words for the users screen.
+func TestAuditWords(t *testing.T) {
+	for _, a := range []string{store.AuditSignIn, store.AuditSignInFailed, store.AuditSignOut, store.AuditPatientView,
+		store.AuditVisitView, store.AuditIngest, store.AuditIngestFailed, store.AuditExport, store.AuditUserCreated,
+		store.AuditUserChanged, store.AuditUserDisabled, store.AuditUserEnabled, store.AuditPasswordReset,
+		store.AuditPasswordChanged, store.AuditPasswordChangeRefused} {
+		w, ok := auditWords[a]
+		if !ok || strings.Contains(w, "_") || w == "" {
+			t.Errorf("audit action %q reads %q", a, auditText(a))
+		}
+	}
+	if got := auditText("some_later_action"); got != "some later action" {
+		t.Errorf("an action without words reads %q", got)
+	}
+}

@@ -5,7 +5,8 @@
 //
 // Owners: 0001 is the store's (patients, visits, recordings, analysis);
 // 0002 the trends package's (reference ranges); 0003 the server's
-// (accounts, sessions, audit log); 0004 the store's (marker intervals).
+// (accounts, sessions, audit log); 0004 the store's (marker intervals);
+// 0005 the server's (the audit actions of an account's lifetime).
 // A file, once released, is never edited: a change is a new file with the
 // next number.
 package migrations

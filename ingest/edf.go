@@ -5,6 +5,7 @@ import (
 	"fmt"
 	"io"
 	"math"
+	"runtime"
 	"strings"
 )
 
@@ -80,24 +81,20 @@ func decode(r io.ReaderAt, size int64, name string, opt Options, requireEEG bool
 	c.Cautions = append([]Caution(nil), hdr.Cautions...)
 
 	// Channels and their scaling.
-	type plan struct {
-		channel      int // index in rec.Channels, -1 for an annotation signal
-		gain, offset float64
-	}
-	plans := make([]plan, len(hdr.Signals))
+	plans := make([]signalPlan, len(hdr.Signals))
 	hasEEG := false
 	seen := map[string]bool{}
 	for i := range hdr.Signals {
 		s := &hdr.Signals[i]
 		if s.Annotation {
-			plans[i] = plan{channel: -1}
+			plans[i] = signalPlan{channel: -1}
 			continue
 		}
 		label, ref, kind, _ := NormalizeLabel(s.Label, s.Transducer)
 		factor, _ := unitFactor(s.Unit)
 		g := (s.PhysicalMax - s.PhysicalMin) / float64(s.DigitalMax-s.DigitalMin)
 		off := s.PhysicalMin - float64(s.DigitalMin)*g
-		plans[i] = plan{channel: len(rec.Channels), gain: g * factor, offset: off * factor}
+		plans[i] = signalPlan{channel: len(rec.Channels), gain: g * factor, offset: off * factor}
 		rec.Channels = append(rec.Channels, Channel{
 			Label: label, Original: s.Label, Reference: ref, Kind: kind, Unit: s.Unit,
 			SampleRate: float64(s.SamplesPerRecord) / hdr.RecordDuration,
@@ -156,6 +153,22 @@ func decode(r io.ReaderAt, size int64, name string, opt Options, requireEEG bool
 		perChunk = hdr.Records
 	}
 	buf := make([]byte, perChunk*hdr.RecordBytes)
+	// The signal samples of the records from split on are converted on a
+	// second goroutine (its own reads, its own buffer) while this one reads
+	// the first part and every record's annotations, which must be read in
+	// order. Each sample is converted by the same code either way.
+	split := hdr.Records
+	var second chan error
+	if runtime.GOMAXPROCS(0) > 1 && hdr.Records*hdr.RecordBytes >= parallelDecodeBytes {
+		split = hdr.Records / 2
+		second = make(chan error, 1)
+		go func() { second <- decodeSignals(r, name, hdr, split, hdr.Records, perChunk, plans, rec) }()
+		defer func() {
+			if second != nil {
+				<-second
+			}
+		}()
+	}
 	var (
 		t0, prevOnset float64
 		haveT0        bool
@@ -186,6 +199,9 @@ func decode(r io.ReaderAt, size int64, name string, opt Options, requireEEG bool
 				slot := rb[s.recordOffset : s.recordOffset+int64(s.SamplesPerRecord*hdr.SampleWidth)]
 				p := plans[i]
 				if p.channel >= 0 {
+					if ri >= split {
+						continue
+					}
 					n := int64(s.SamplesPerRecord)
 					dst := rec.Channels[p.channel].Samples[ri*n : (ri+1)*n]
 					if hdr.SampleWidth == 2 {
@@ -262,6 +278,13 @@ func decode(r io.ReaderAt, size int64, name string, opt Options, requireEEG bool
 			prevOnset = onset
 		}
 	}
+	if second != nil {
+		err := <-second
+		second = nil
+		if err != nil {
+			return nil, err
+		}
+	}
 	if firstAnn < 0 || len(rec.Segments) == 0 {
 		rec.Segments = []Segment{{Onset: 0, First: 0, Count: int(hdr.Records) * eegPerRecord}}
 	}
@@ -325,6 +348,54 @@ func decode(r io.ReaderAt, size int64, name string, opt Options, requireEEG bool
 		rec.Periods = []Period{{State: EyesUnknown, Start: 0, End: total}}
 	}
 	return rec, nil
+}
+
+// signalPlan says where a signal's samples go and how they are scaled.
+type signalPlan struct {
+	channel      int // index in rec.Channels, -1 for an annotation signal
+	gain, offset float64
+}
+
+// parallelDecodeBytes is the data size from which decode converts the
+// samples of the second half of the records on a second goroutine: below
+// it (a few seconds of a routine recording) a goroutine costs more than it
+// saves.
+const parallelDecodeBytes = 8 << 20
+
+// decodeSignals converts the ordinary signals' samples of data records
+// [from, to) into rec's channels, reading perChunk records at a time
+// through its own buffer; annotation signals are left to decode's loop.
+func decodeSignals(r io.ReaderAt, name string, hdr *Header, from, to, perChunk int64, plans []signalPlan, rec *Recording) error {
+	buf := make([]byte, perChunk*hdr.RecordBytes)
+	for r0 := from; r0 < to; r0 += perChunk {
+		nr := min(perChunk, to-r0)
+		chunk := buf[:nr*hdr.RecordBytes]
+		at := hdr.HeaderBytes + r0*hdr.RecordBytes
+		if err := readFull(r, chunk, at); err != nil {
+			return &FormatError{File: name, Field: "data record", Signal: -1, Offset: at,
+				Msg: fmt.Sprintf("cannot read data record %d: %v", r0, err), Err: io.ErrUnexpectedEOF}
+		}
+		for k := int64(0); k < nr; k++ {
+			ri := r0 + k
+			rb := chunk[k*hdr.RecordBytes : (k+1)*hdr.RecordBytes]
+			for i := range hdr.Signals {
+				p := plans[i]
+				if p.channel < 0 {
+					continue
+				}
+				s := &hdr.Signals[i]
+				slot := rb[s.recordOffset : s.recordOffset+int64(s.SamplesPerRecord*hdr.SampleWidth)]
+				n := int64(s.SamplesPerRecord)
+				dst := rec.Channels[p.channel].Samples[ri*n : (ri+1)*n]
+				if hdr.SampleWidth == 2 {
+					decode16(dst, slot, p.gain, p.offset)
+				} else {
+					decode24(dst, slot, p.gain, p.offset)
+				}
+			}
+		}
+	}
+	return nil
 }
 
 type zeroValue struct {

@@ -222,6 +222,16 @@ func prepare(rec *ingest.Recording, s Settings) (*analysis, error) {
 	return a, nil
 }
 
+// listStates gives every eye state of the recording's periods an entry in
+// q's per-state tallies, so that a state with nothing kept reads 0 rather
+// than missing.
+func (a *analysis) listStates(q *Quality) {
+	for _, p := range a.periods {
+		q.CleanSeconds[p.State] += 0
+		q.EpochsTotal[p.State] += 0
+	}
+}
+
 // parallel calls fn(worker, i) for i = 0…n−1 on `workers` goroutines; each
 // worker index is used by one goroutine at a time, so fn may keep per-worker
 // work space indexed by it.
@@ -499,10 +509,7 @@ func (a *analysis) quality() Quality {
 		return q
 	}
 	rejected := 0
-	for _, p := range a.periods {
-		q.CleanSeconds[p.State] += 0
-		q.EpochsTotal[p.State] += 0
-	}
+	a.listStates(&q)
 	for _, e := range a.eps {
 		q.EpochsTotal[e.State]++
 		if e.Reject == "" {

@@ -623,10 +623,7 @@ func (a *analysis) qualityV2(q *Quality) {
 	v := a.v2
 	wsec := float64(v.wlen) / a.fs
 	rejected := 0
-	for _, p := range a.periods {
-		q.CleanSeconds[p.State] += 0
-		q.EpochsTotal[p.State] += 0
-	}
+	a.listStates(q)
 	for _, e := range a.eps {
 		q.EpochsTotal[e.State]++
 		if e.Reject != "" {

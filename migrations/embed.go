@@ -6,8 +6,10 @@
 // Owners: 0001 is the store's (patients, visits, recordings, analysis);
 // 0002 the trends package's (reference ranges); 0003 the server's
 // (accounts, sessions, audit log); 0004 the store's (marker intervals);
-// 0006 the store's (the cohort's kept entries). A file, once released, is
-// never edited: a change is a new file with the next number.
+// 0005 the server's (the audit actions of an account's lifetime); 0006 the
+// store's (the cohort's kept entries, the course's overlay spectra). A
+// file, once released, is never edited: a change is a new file with the
+// next number.
 //
 // A number may be missing while branches that each claim one are merged
 // (0005 was claimed when 0006 was written): the store records every

@@ -155,7 +155,7 @@ func TestExpiredSession(t *testing.T) {
 	if _, err := st.CheckPassword(ctx, "short-lived", "wrong-password-1"); err != store.ErrBadCredentials {
 		t.Errorf("wrong password: %v", err)
 	}
-	if err := st.SetDisabled(ctx, "short-lived", true); err != nil {
+	if _, err := st.SetDisabled(ctx, store.Actor{Name: "cli:test"}, "short-lived", true); err != nil {
 		t.Fatal(err)
 	}
 	if _, err := st.CheckPassword(ctx, "short-lived", testPassword); err != store.ErrBadCredentials {

@@ -20,6 +20,7 @@ import (
 	"github.com/chromedp/chromedp"
 
 	"longwave/ingest/testenv"
+	"longwave/server/store"
 )
 
 // browserPath finds Chromium: $LONGWAVE_BROWSER, else /usr/bin/chromium
@@ -481,11 +482,22 @@ func TestBrowser(t *testing.T) {
 	must("hostile visit traces", err)
 	shot("visit-hostile")
 	checkWordsOnScreen(t, ctx, "hostile visit")
-	for _, p := range []string{"/patients", "/sources", "/users", summaryURL(xssCode)} {
+	for _, p := range []string{"/patients", "/sources", "/users", "/password", summaryURL(xssCode)} {
 		must("open "+p, chromedp.Do(ctx, chromedp.Navigate(base+p)))
 		shot(strings.ReplaceAll(strings.TrimPrefix(p, "/"), "/", "-"))
 		checkWordsOnScreen(t, ctx, p)
 	}
+	// The users screen's row form: a reset of the clinician's password
+	// shows the new one once.
+	must("open users", chromedp.Do(ctx, chromedp.Navigate(base+"/users")))
+	must("reset a password", loadAfter(chromedp.Click(chromedp.CSS(`form[action="/users/`+clinicianName+`/reset"] button`))))
+	shown, err := chromedp.Run(ctx, chromedp.Evaluate[string](`(document.querySelector('#new-password .secret') || {}).textContent || ''`))
+	must("read the shown password", err)
+	if len(shown) != store.GeneratedPasswordLength {
+		t.Errorf("after a reset the users screen shows %q, want a %d-character password", shown, store.GeneratedPasswordLength)
+	}
+	shot("users-reset")
+	checkWordsOnScreen(t, ctx, "users after a reset")
 	must("settle", chromedp.Do(ctx, chromedp.Sleep(500*time.Millisecond)))
 
 	// Probes: the watchers must see a dialog and a request to another host

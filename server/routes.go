@@ -44,6 +44,11 @@ func (s *Server) table() []route {
 		{"sources", http.MethodGet, "/sources", permView, s.sourcesPage},
 		{"users", http.MethodGet, "/users", permUsers, s.usersPage},
 		{"users-add", http.MethodPost, "/users", permUsers, s.addUser},
+		{"users-disable", http.MethodPost, "/users/{name}/disable", permUsers, s.disableUser},
+		{"users-enable", http.MethodPost, "/users/{name}/enable", permUsers, s.enableUser},
+		{"users-reset", http.MethodPost, "/users/{name}/reset", permUsers, s.resetUser},
+		{"password-form", http.MethodGet, passwordURL, permSignedIn, s.passwordPage},
+		{"password", http.MethodPost, passwordURL, permSignedIn, s.changePassword},
 
 		{"api-patients", http.MethodGet, "/api/v1/patients", permView, s.apiPatients},
 		{"api-course", http.MethodGet, "/api/v1/patients/{code}/course", permView, s.apiCourse},

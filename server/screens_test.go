@@ -18,7 +18,7 @@ import (
 func screenPaths(t *testing.T, c *client) []string {
 	t.Helper()
 	paths := []string{"/patients", "/cohort", "/cohort?overdue=1&sort=-overdue", "/add", "/add?patient=LW-0101",
-		"/sources", "/users", "/no-such-page"}
+		"/sources", "/users", "/password", "/no-such-page"}
 	for _, code := range []string{"LW-0101", xssCode} {
 		paths = append(paths, courseURL(code), summaryURL(code))
 		status, body, _ := c.get("/api/v1" + courseURL(code) + "/course")

@@ -30,8 +30,10 @@ func sessionFrom(ctx context.Context) (store.Session, bool) {
 }
 
 // sessionMemo is how long a session found in the store is believed without
-// asking the store again. Sign-out through the service forgets it at once;
-// a user disabled or changed from the command line loses access within it.
+// asking the store again. Sign-out, disabling a user, resetting a password
+// and changing one's own password through the service forget it at once;
+// a user disabled or reset from the command line (another process) loses
+// access within it.
 const sessionMemo = 2 * time.Second
 
 // sessionMemoMax bounds the memo; past it the memo starts afresh.
@@ -43,9 +45,22 @@ type memoSession struct {
 }
 
 // sessionCache remembers recently checked sessions by cookie token.
+//
+// A request that read its session from the store just before a disable (or
+// reset, or sign-out) ended it must not put it back into the memo after
+// the forget: each forget moves the epoch on, and put keeps a session only
+// when the epoch is still the one seen before the store was asked.
 type sessionCache struct {
-	mu sync.Mutex
-	m  map[string]memoSession
+	mu    sync.Mutex
+	m     map[string]memoSession
+	epoch uint64
+}
+
+// begin returns the epoch to hand to put after asking the store.
+func (c *sessionCache) begin() uint64 {
+	c.mu.Lock()
+	defer c.mu.Unlock()
+	return c.epoch
 }
 
 func (c *sessionCache) get(token string, now time.Time) (store.Session, bool) {
@@ -58,9 +73,12 @@ func (c *sessionCache) get(token string, now time.Time) (store.Session, bool) {
 	return e.sess, true
 }
 
-func (c *sessionCache) put(token string, sess store.Session, now time.Time) {
+func (c *sessionCache) put(token string, sess store.Session, now time.Time, epoch uint64) {
 	c.mu.Lock()
 	defer c.mu.Unlock()
+	if epoch != c.epoch {
+		return // something was forgotten since the store was asked
+	}
 	if c.m == nil || len(c.m) >= sessionMemoMax {
 		c.m = map[string]memoSession{}
 	}
@@ -70,6 +88,22 @@ func (c *sessionCache) put(token string, sess store.Session, now time.Time) {
 func (c *sessionCache) forget(token string) {
 	c.mu.Lock()
 	delete(c.m, token)
+	c.epoch++
+	c.mu.Unlock()
+}
+
+// forgetUser drops every remembered session of a user, so that the next
+// request of any of them asks the store (after a disable, a reset or a
+// password change ended them there). The memo is small (sessionMemoMax),
+// so walking it is cheap.
+func (c *sessionCache) forgetUser(id int64) {
+	c.mu.Lock()
+	for token, e := range c.m {
+		if e.sess.User.ID == id {
+			delete(c.m, token)
+		}
+	}
+	c.epoch++
 	c.mu.Unlock()
 }
 
@@ -83,11 +117,12 @@ func (s *Server) lookupSession(r *http.Request) (store.Session, string, error) {
 	if sess, ok := s.sessions.get(c.Value, now); ok {
 		return sess, c.Value, nil
 	}
+	epoch := s.sessions.begin()
 	sess, err := s.st.SessionByToken(r.Context(), c.Value)
 	if err != nil {
 		return store.Session{}, "", err
 	}
-	s.sessions.put(c.Value, sess, now)
+	s.sessions.put(c.Value, sess, now, epoch)
 	return sess, c.Value, nil
 }
 

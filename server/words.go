@@ -5,6 +5,7 @@ import (
 	"strings"
 
 	"longwave/metrics"
+	"longwave/server/store"
 	"longwave/trends"
 )
 
@@ -93,4 +94,31 @@ func peopleText(s string) string {
 		}
 		return regionName(k)
 	})
+}
+
+// auditWords names each action of the audit log for the users screen.
+var auditWords = map[string]string{
+	store.AuditSignIn:                "signed in",
+	store.AuditSignInFailed:          "sign-in refused",
+	store.AuditSignOut:               "signed out",
+	store.AuditPatientView:           "opened a patient",
+	store.AuditVisitView:             "opened a visit",
+	store.AuditIngest:                "added a recording",
+	store.AuditIngestFailed:          "recording refused",
+	store.AuditExport:                "exported",
+	store.AuditUserCreated:           "added a user",
+	store.AuditUserChanged:           "changed a user",
+	store.AuditUserDisabled:          "disabled a user",
+	store.AuditUserEnabled:           "enabled a user",
+	store.AuditPasswordReset:         "reset a password",
+	store.AuditPasswordChanged:       "changed own password",
+	store.AuditPasswordChangeRefused: "password change refused",
+}
+
+// auditText returns an audit action's words.
+func auditText(action string) string {
+	if w, ok := auditWords[action]; ok {
+		return w
+	}
+	return keyWords(action)
 }

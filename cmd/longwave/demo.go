@@ -1,6 +1,7 @@
 package main
 
 import (
+	"errors"
 	"flag"
 	"fmt"
 	"os"
@@ -68,12 +69,19 @@ func init() {
 				} else {
 					fmt.Fprintf(e.stdout, "%s already holds %d patients: serving it as it is\n", path, len(have))
 				}
-				password, _, err := readPassword(nil)
+				password, _, err := readPassword(nil, demoUser, store.RoleAdmin)
 				if err != nil {
 					return err
 				}
-				if _, err := st.CreateUser(e.ctx, demoUser, store.RoleAdmin, password); err != nil {
-					if err := st.SetPassword(e.ctx, demoUser, password); err != nil {
+				actor, err := cliActor("")
+				if err != nil {
+					actor = store.Actor{Name: "cli:" + demoUser}
+				}
+				if _, err := st.AddUser(e.ctx, actor, demoUser, store.RoleAdmin, password); err != nil {
+					if !errors.Is(err, store.ErrUserExists) {
+						return err
+					}
+					if err := st.ResetPassword(e.ctx, actor, demoUser, password); err != nil {
 						return err
 					}
 				}

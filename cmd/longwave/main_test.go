@@ -70,7 +70,7 @@ func TestHelpOfEveryCommand(t *testing.T) {
 			t.Errorf("markers --help does not explain %s", m)
 		}
 	}
-	for _, db := range []string{"ingest", "reprocess", "export", "backup", "user", "serve"} {
+	for _, db := range []string{"ingest", "reprocess", "export", "backup", "check", "user", "serve"} {
 		_, out, _ := run(t, "", db, "--help")
 		if !strings.Contains(out, "-db FILE") || !strings.Contains(out, `default "longwave.db"`) {
 			t.Errorf("%s --help: no --db FILE defaulting to longwave.db", db)
@@ -291,8 +291,8 @@ func TestIngestExportBackupUser(t *testing.T) {
 	if _, err := st.CheckPassword(context.Background(), "dr.lind", "correct horse battery"); err != nil {
 		t.Errorf("stdin password does not sign in: %v", err)
 	}
-	if code, _, stderr := run(t, "x\n", "user", "add", "--db", db, "--name", "coord", "--role", "admin", "--db", db); code != exitFailed || stderr == "" {
-		t.Errorf("duplicate user: exit %d", code)
+	if code, _, stderr := run(t, "tarn-fell-39x\n", "user", "add", "--db", db, "--name", "coord", "--role", "admin", "--db", db); code != exitFailed || !strings.Contains(stderr, "exists") {
+		t.Errorf("duplicate user: exit %d %q", code, stderr)
 	}
 }
 

@@ -2,7 +2,14 @@ package store
 
 // Accounts of the web service: users with bcrypt password hashes, sign-in
 // sessions with their CSRF token, failed sign-in counters and the audit log
-// (migrations/0003_accounts.sql). Package server is the only caller.
+// (migrations/0003_accounts.sql, 0005_accounts_lifetime.sql). Package
+// server and the command line's "user" command are the callers.
+//
+// Every change to an account over its lifetime (added, disabled, enabled,
+// password reset by an admin, password changed by its user, role changed)
+// is written to the audit log in the same transaction as the change, with
+// the Actor who made it, so no change goes unaudited and no audit entry
+// names a change that did not happen. No audit entry holds a password.
 
 import (
 	"context"
@@ -39,16 +46,22 @@ const (
 	AuditExport       = "export"
 	AuditUserCreated  = "user_created"
 	AuditUserChanged  = "user_changed"
+	// Added by migration 0005: an account's lifetime.
+	AuditUserDisabled          = "user_disabled"
+	AuditUserEnabled           = "user_enabled"
+	AuditPasswordReset         = "password_reset"
+	AuditPasswordChanged       = "password_changed"
+	AuditPasswordChangeRefused = "password_change_refused"
 )
 
-// Limits of account values.
+// Limits of account values (the password lengths are in passwords.go).
 const (
 	// MaxUserName is the longest sign-in name, in bytes.
 	MaxUserName = 64
-	// MinPassword is the shortest password accepted, in bytes; MaxPassword
-	// the longest, bcrypt's own limit (it reads at most 72 bytes).
-	MinPassword = 10
-	MaxPassword = 72
+	// maxPasswordBytes bounds the bytes of a password checked at sign-in
+	// (MaxPassword characters of at most 4 bytes each); anything longer is
+	// refused before any hashing.
+	maxPasswordBytes = 4 * MaxPassword
 	// sessionTokenBytes and csrfTokenBytes are the random bytes behind a
 	// session cookie and a CSRF token (256 bits each).
 	sessionTokenBytes = 32
@@ -62,6 +75,11 @@ var (
 	ErrUserExists     = errors.New("store: a user of that name exists")
 	ErrNoUser         = errors.New("store: no such user")
 	ErrBadAccount     = errors.New("store: invalid account value")
+	// ErrLastAdmin refuses to disable or demote the only enabled admin:
+	// without one nobody could manage the accounts from the web service.
+	ErrLastAdmin = errors.New("store: the last enabled admin cannot be disabled or given another role (nobody could manage accounts); enable or add another admin first")
+	// ErrSamePassword refuses a new password equal to the current one.
+	ErrSamePassword = errors.New("store: the new password is the same as the current one")
 )
 
 // User is an account of the web service.
@@ -90,6 +108,14 @@ type AuditEntry struct {
 	Client  string
 }
 
+// Actor is who makes an account change, as the audit log names them: the
+// signed-in user's name and client address for the web service, or
+// "cli:<name>" and no address for the command line.
+type Actor struct {
+	Name   string
+	Client string
+}
+
 // ValidRole reports whether role is one of the three roles.
 func ValidRole(role string) bool {
 	return role == RoleClinician || role == RoleCoordinator || role == RoleAdmin
@@ -98,117 +124,324 @@ func ValidRole(role string) bool {
 // validUserName accepts 1–64 bytes of printable characters without spaces.
 func validUserName(name string) error {
 	if name == "" || len(name) > MaxUserName {
-		return fmt.Errorf("%w: user name must be 1 to %d bytes", ErrBadAccount, MaxUserName)
+		return &AccountError{Field: "user name", Reason: fmt.Sprintf("must be 1 to %d bytes", MaxUserName)}
 	}
 	for _, r := range name {
 		if !unicode.IsPrint(r) || unicode.IsSpace(r) {
-			return fmt.Errorf("%w: user name may hold only printable characters without spaces", ErrBadAccount)
+			return &AccountError{Field: "user name", Reason: "may hold only printable characters without spaces"}
 		}
 	}
 	return nil
 }
 
-func validPassword(pw string) error {
-	if len(pw) < MinPassword || len(pw) > MaxPassword {
-		return fmt.Errorf("%w: password must be %d to %d bytes", ErrBadAccount, MinPassword, MaxPassword)
+func validRole(role string) error {
+	if !ValidRole(role) {
+		return &AccountError{Field: "role", Reason: "must be clinician, coordinator or admin"}
 	}
 	return nil
 }
 
-// CreateUser adds a user with a bcrypt hash (cost bcrypt.DefaultCost) of
-// password. It returns ErrUserExists when the name is taken and ErrBadAccount
-// for a bad name, role or password.
+// hashPassword is the bcrypt hash (cost bcrypt.DefaultCost) of a password.
+func hashPassword(password string) (string, error) {
+	hash, err := bcrypt.GenerateFromPassword(bcryptInput(password), bcrypt.DefaultCost)
+	if err != nil {
+		return "", fmt.Errorf("store: hash password: %w", err)
+	}
+	return string(hash), nil
+}
+
+// auditTx appends an audit entry inside an account change's transaction.
+func (s *Store) auditTx(ctx context.Context, tx *sql.Tx, by Actor, action, subject string) error {
+	if _, err := tx.ExecContext(ctx,
+		`INSERT INTO audit_log (at, user_name, action, subject, client) VALUES (?, ?, ?, ?, ?)`,
+		s.now().UTC().Format(time.RFC3339Nano), truncate(by.Name, 200), action, truncate(subject, 500), truncate(by.Client, 100)); err != nil {
+		return fmt.Errorf("store: audit %s: %w", action, err)
+	}
+	return nil
+}
+
+// CreateUser adds a user with a bcrypt hash of password and writes no
+// audit entry (tests and first set-up; the user command and the users
+// screen call AddUser). It returns ErrUserExists when the name is taken and
+// an *AccountError (ErrBadAccount) for a bad name, role or password.
 func (s *Store) CreateUser(ctx context.Context, name, role, password string) (User, error) {
+	return s.createUser(ctx, nil, name, role, password)
+}
+
+// AddUser is CreateUser with a user_created audit entry naming by, in the
+// same transaction.
+func (s *Store) AddUser(ctx context.Context, by Actor, name, role, password string) (User, error) {
+	return s.createUser(ctx, &by, name, role, password)
+}
+
+func (s *Store) createUser(ctx context.Context, by *Actor, name, role, password string) (_ User, err error) {
 	if err := validUserName(name); err != nil {
 		return User{}, err
 	}
-	if !ValidRole(role) {
-		return User{}, fmt.Errorf("%w: role must be clinician, coordinator or admin", ErrBadAccount)
-	}
-	if err := validPassword(password); err != nil {
+	if err := validRole(role); err != nil {
 		return User{}, err
 	}
-	hash, err := bcrypt.GenerateFromPassword([]byte(password), bcrypt.DefaultCost)
+	if err := CheckNewPassword(name, role, password); err != nil {
+		return User{}, err
+	}
+	hash, err := hashPassword(password)
 	if err != nil {
-		return User{}, fmt.Errorf("store: hash password: %w", err)
+		return User{}, err
 	}
 	now := s.now().UTC()
-	res, err := s.w.ExecContext(ctx,
-		`INSERT INTO users (name, role, password_hash, created_at) VALUES (?, ?, ?, ?)
-		 ON CONFLICT (name) DO NOTHING`,
-		name, role, string(hash), now.Format(time.RFC3339))
-	if err != nil {
-		return User{}, fmt.Errorf("store: create user: %w", err)
-	}
-	if n, err := res.RowsAffected(); err != nil {
-		return User{}, fmt.Errorf("store: create user: %w", err)
-	} else if n == 0 {
+	var id int64
+	err = s.inTx(ctx, func(tx *sql.Tx) error {
+		res, err := tx.ExecContext(ctx,
+			`INSERT INTO users (name, role, password_hash, created_at) VALUES (?, ?, ?, ?)
+			 ON CONFLICT (name) DO NOTHING`,
+			name, role, hash, now.Format(time.RFC3339))
+		if err != nil {
+			return err
+		}
+		if n, err := res.RowsAffected(); err != nil {
+			return err
+		} else if n == 0 {
+			return ErrUserExists
+		}
+		if id, err = res.LastInsertId(); err != nil {
+			return err
+		}
+		if by != nil {
+			return s.auditTx(ctx, tx, *by, AuditUserCreated, name+" ("+role+")")
+		}
+		return nil
+	})
+	if errors.Is(err, ErrUserExists) {
 		return User{}, ErrUserExists
 	}
-	id, err := res.LastInsertId()
 	if err != nil {
-		return User{}, fmt.Errorf("store: create user: %w", err)
+		return User{}, fmt.Errorf("store: create user %s: %w", name, err)
 	}
 	return User{ID: id, Name: name, Role: role, Created: now.Truncate(time.Second)}, nil
 }
 
-// SetPassword replaces a user's password hash and ends the user's sessions.
-func (s *Store) SetPassword(ctx context.Context, name, password string) error {
-	if err := validPassword(password); err != nil {
+// User returns the user of a name, or ErrNoUser.
+func (s *Store) User(ctx context.Context, name string) (User, error) {
+	return s.userBy(ctx, s.r, name)
+}
+
+func (s *Store) userBy(ctx context.Context, q querier, name string) (User, error) {
+	var (
+		u        User
+		created  string
+		disabled int
+	)
+	err := q.QueryRowContext(ctx, `SELECT id, name, role, created_at, disabled FROM users WHERE name = ?`, name).
+		Scan(&u.ID, &u.Name, &u.Role, &created, &disabled)
+	if errors.Is(err, sql.ErrNoRows) {
+		return User{}, ErrNoUser
+	}
+	if err != nil {
+		return User{}, fmt.Errorf("store: user %s: %w", name, err)
+	}
+	u.Created, _ = time.Parse(time.RFC3339, created)
+	u.Disabled = disabled != 0
+	return u, nil
+}
+
+// ResetPassword gives a user a new password chosen by an admin (or the
+// command line), ends all the user's sessions and audits password_reset,
+// in one transaction. The rules of CheckNewPassword apply with the user's
+// role. ErrNoUser when there is no such user.
+func (s *Store) ResetPassword(ctx context.Context, by Actor, name, password string) error {
+	u, err := s.User(ctx, name)
+	if err != nil {
 		return err
 	}
-	hash, err := bcrypt.GenerateFromPassword([]byte(password), bcrypt.DefaultCost)
+	if err := CheckNewPassword(u.Name, u.Role, password); err != nil {
+		return err
+	}
+	hash, err := hashPassword(password)
 	if err != nil {
-		return fmt.Errorf("store: hash password: %w", err)
+		return err
 	}
-	return s.changeUser(ctx, name, `UPDATE users SET password_hash = ? WHERE name = ?`, string(hash), name)
-}
-
-// SetRole changes a user's role and ends the user's sessions, so the new
-// role applies from the next sign-in.
-func (s *Store) SetRole(ctx context.Context, name, role string) error {
-	if !ValidRole(role) {
-		return fmt.Errorf("%w: role must be clinician, coordinator or admin", ErrBadAccount)
-	}
-	return s.changeUser(ctx, name, `UPDATE users SET role = ? WHERE name = ?`, role, name)
-}
-
-// SetDisabled disables or enables a user; disabling ends the user's sessions.
-func (s *Store) SetDisabled(ctx context.Context, name string, disabled bool) error {
-	v := 0
-	if disabled {
-		v = 1
-	}
-	return s.changeUser(ctx, name, `UPDATE users SET disabled = ? WHERE name = ?`, v, name)
-}
-
-func (s *Store) changeUser(ctx context.Context, name, query string, args ...any) (err error) {
-	tx, err := s.w.BeginTx(ctx, nil)
-	if err != nil {
-		return fmt.Errorf("store: change user: %w", err)
-	}
-	defer func() {
+	// bcrypt ran outside the transaction; the role it was checked against
+	// must still be the user's.
+	err = s.inTx(ctx, func(tx *sql.Tx) error {
+		res, err := tx.ExecContext(ctx, `UPDATE users SET password_hash = ? WHERE id = ? AND role = ?`, hash, u.ID, u.Role)
 		if err != nil {
-			_ = tx.Rollback()
+			return err
 		}
-	}()
-	res, err := tx.ExecContext(ctx, query, args...)
-	if err != nil {
-		return fmt.Errorf("store: change user: %w", err)
-	}
-	if n, err := res.RowsAffected(); err != nil {
-		return fmt.Errorf("store: change user: %w", err)
-	} else if n == 0 {
+		if n, err := res.RowsAffected(); err != nil {
+			return err
+		} else if n == 0 {
+			return ErrNoUser
+		}
+		if _, err := tx.ExecContext(ctx, `DELETE FROM sessions WHERE user_id = ?`, u.ID); err != nil {
+			return fmt.Errorf("end sessions: %w", err)
+		}
+		return s.auditTx(ctx, tx, by, AuditPasswordReset, u.Name)
+	})
+	if errors.Is(err, ErrNoUser) {
 		return ErrNoUser
 	}
-	if _, err := tx.ExecContext(ctx,
-		`DELETE FROM sessions WHERE user_id = (SELECT id FROM users WHERE name = ?)`, name); err != nil {
-		return fmt.Errorf("store: change user: end sessions: %w", err)
-	}
-	if err := tx.Commit(); err != nil {
-		return fmt.Errorf("store: change user: %w", err)
+	if err != nil {
+		return fmt.Errorf("store: reset password of %s: %w", name, err)
 	}
 	return nil
+}
+
+// ChangePassword is a signed-in user changing their own password: the
+// current password must match (else ErrBadCredentials, audited as
+// password_change_refused), the new one must pass CheckNewPassword and
+// differ from it (ErrSamePassword). Every other session of the user ends;
+// the session of keepToken (the one making the change) stays. by.Name is
+// the user.
+func (s *Store) ChangePassword(ctx context.Context, by Actor, current, next, keepToken string) error {
+	var (
+		u        User
+		old      string
+		disabled int
+	)
+	err := s.r.QueryRowContext(ctx, `SELECT id, name, role, password_hash, disabled FROM users WHERE name = ?`, by.Name).
+		Scan(&u.ID, &u.Name, &u.Role, &old, &disabled)
+	if errors.Is(err, sql.ErrNoRows) {
+		return ErrNoUser
+	}
+	if err != nil {
+		return fmt.Errorf("store: change password of %s: %w", by.Name, err)
+	}
+	if disabled != 0 {
+		return ErrNoUser
+	}
+	if len(current) > maxPasswordBytes || bcrypt.CompareHashAndPassword([]byte(old), bcryptInput(current)) != nil {
+		if err := s.Audit(ctx, by.Name, AuditPasswordChangeRefused, "current password wrong", by.Client); err != nil {
+			return err
+		}
+		return ErrBadCredentials
+	}
+	if next == current {
+		return ErrSamePassword
+	}
+	if err := CheckNewPassword(u.Name, u.Role, next); err != nil {
+		return err
+	}
+	hash, err := hashPassword(next)
+	if err != nil {
+		return err
+	}
+	err = s.inTx(ctx, func(tx *sql.Tx) error {
+		// Only if the hash is still the one the current password matched:
+		// a reset in between wins.
+		res, err := tx.ExecContext(ctx, `UPDATE users SET password_hash = ? WHERE id = ? AND password_hash = ? AND disabled = 0`, hash, u.ID, old)
+		if err != nil {
+			return err
+		}
+		if n, err := res.RowsAffected(); err != nil {
+			return err
+		} else if n == 0 {
+			return ErrBadCredentials
+		}
+		if _, err := tx.ExecContext(ctx, `DELETE FROM sessions WHERE user_id = ? AND token_hash <> ?`, u.ID, tokenHash(keepToken)); err != nil {
+			return fmt.Errorf("end other sessions: %w", err)
+		}
+		return s.auditTx(ctx, tx, by, AuditPasswordChanged, u.Name)
+	})
+	if errors.Is(err, ErrBadCredentials) {
+		return ErrBadCredentials
+	}
+	if err != nil {
+		return fmt.Errorf("store: change password of %s: %w", by.Name, err)
+	}
+	return nil
+}
+
+// SetRole changes a user's role, ends the user's sessions (the new role
+// applies from the next sign-in) and audits user_changed. The last enabled
+// admin keeps the role (ErrLastAdmin).
+func (s *Store) SetRole(ctx context.Context, by Actor, name, role string) error {
+	if err := validRole(role); err != nil {
+		return err
+	}
+	err := s.inTx(ctx, func(tx *sql.Tx) error {
+		u, err := s.userBy(ctx, tx, name)
+		if err != nil {
+			return err
+		}
+		if u.Role == role {
+			return nil
+		}
+		if u.Role == RoleAdmin && !u.Disabled {
+			if err := lastAdminGuard(ctx, tx); err != nil {
+				return err
+			}
+		}
+		if _, err := tx.ExecContext(ctx, `UPDATE users SET role = ? WHERE id = ?`, role, u.ID); err != nil {
+			return err
+		}
+		if _, err := tx.ExecContext(ctx, `DELETE FROM sessions WHERE user_id = ?`, u.ID); err != nil {
+			return fmt.Errorf("end sessions: %w", err)
+		}
+		return s.auditTx(ctx, tx, by, AuditUserChanged, u.Name+": role "+u.Role+" → "+role)
+	})
+	if errors.Is(err, ErrNoUser) || errors.Is(err, ErrLastAdmin) {
+		return err
+	}
+	if err != nil {
+		return fmt.Errorf("store: set role of %s: %w", name, err)
+	}
+	return nil
+}
+
+// lastAdminGuard returns ErrLastAdmin when at most one enabled admin is
+// left (the one about to be disabled or demoted).
+func lastAdminGuard(ctx context.Context, tx *sql.Tx) error {
+	var n int
+	if err := tx.QueryRowContext(ctx, `SELECT count(*) FROM users WHERE role = 'admin' AND disabled = 0`).Scan(&n); err != nil {
+		return err
+	}
+	if n <= 1 {
+		return ErrLastAdmin
+	}
+	return nil
+}
+
+// SetDisabled disables or enables a user and audits user_disabled or
+// user_enabled, in one transaction; disabling ends all the user's sessions
+// in the same transaction. It reports whether anything changed (false when
+// the user already was in that state: nothing is written). The last
+// enabled admin cannot be disabled (ErrLastAdmin).
+func (s *Store) SetDisabled(ctx context.Context, by Actor, name string, disabled bool) (changed bool, err error) {
+	err = s.inTx(ctx, func(tx *sql.Tx) error {
+		u, err := s.userBy(ctx, tx, name)
+		if err != nil {
+			return err
+		}
+		if u.Disabled == disabled {
+			return nil
+		}
+		v, action := 0, AuditUserEnabled
+		if disabled {
+			v, action = 1, AuditUserDisabled
+			if u.Role == RoleAdmin {
+				if err := lastAdminGuard(ctx, tx); err != nil {
+					return err
+				}
+			}
+		}
+		if _, err := tx.ExecContext(ctx, `UPDATE users SET disabled = ? WHERE id = ?`, v, u.ID); err != nil {
+			return err
+		}
+		if disabled {
+			if _, err := tx.ExecContext(ctx, `DELETE FROM sessions WHERE user_id = ?`, u.ID); err != nil {
+				return fmt.Errorf("end sessions: %w", err)
+			}
+		}
+		changed = true
+		return s.auditTx(ctx, tx, by, action, u.Name)
+	})
+	if errors.Is(err, ErrNoUser) || errors.Is(err, ErrLastAdmin) {
+		return false, err
+	}
+	if err != nil {
+		return false, fmt.Errorf("store: set disabled of %s: %w", name, err)
+	}
+	return changed, nil
 }
 
 // dummyHash is compared against when the user does not exist, so that an
@@ -237,14 +470,14 @@ func (s *Store) CheckPassword(ctx context.Context, name, password string) (User,
 	err := s.r.QueryRowContext(ctx,
 		`SELECT id, name, role, password_hash, created_at, disabled FROM users WHERE name = ?`, name).
 		Scan(&u.ID, &u.Name, &u.Role, &hash, &created, &disabled)
-	if errors.Is(err, sql.ErrNoRows) || len(password) > MaxPassword {
-		_ = bcrypt.CompareHashAndPassword(dummyHash, []byte(password))
+	if errors.Is(err, sql.ErrNoRows) || len(password) > maxPasswordBytes {
+		_ = bcrypt.CompareHashAndPassword(dummyHash, bcryptInput(password))
 		return User{}, ErrBadCredentials
 	}
 	if err != nil {
 		return User{}, fmt.Errorf("store: check password: %w", err)
 	}
-	if err := bcrypt.CompareHashAndPassword([]byte(hash), []byte(password)); err != nil {
+	if err := bcrypt.CompareHashAndPassword([]byte(hash), bcryptInput(password)); err != nil {
 		return User{}, ErrBadCredentials
 	}
 	if disabled != 0 {

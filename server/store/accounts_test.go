@@ -59,13 +59,13 @@ func TestAccountValidation(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	if err := st.SetRole(ctx, "dr-vale", RoleCoordinator); err != nil {
+	if err := st.SetRole(ctx, cliActor, "dr-vale", RoleCoordinator); err != nil {
 		t.Fatal(err)
 	}
 	if _, err := st.SessionByToken(ctx, tok); !errors.Is(err, ErrNoSession) {
 		t.Errorf("session after role change: %v, want ErrNoSession", err)
 	}
-	if err := st.SetRole(ctx, "nobody", RoleAdmin); !errors.Is(err, ErrNoUser) {
+	if err := st.SetRole(ctx, cliActor, "nobody", RoleAdmin); !errors.Is(err, ErrNoUser) {
 		t.Errorf("SetRole of unknown user: %v", err)
 	}
 }

@@ -193,10 +193,11 @@ func notADatabase(err error) error {
 	return err
 }
 
-// Close closes both connection pools.
+// Close closes both connection pools (one pool for a store opened with
+// OpenReadOnly).
 func (s *Store) Close() error {
 	var errR error
-	if s.r != nil {
+	if s.r != nil && s.r != s.w {
 		errR = s.r.Close()
 	}
 	errW := s.w.Close()

@@ -7,7 +7,7 @@ import (
 )
 
 // Screen bodies are the same for every user who may see them, and the
-// course of a patient with 40 visits takes about 10 ms of CPU to build
+// course of a patient with 40 visits takes about 35–45 ms to build cold
 // from the store and render; 50 people on two cores must not each pay
 // that. Bodies are kept for bodyTTL and dropped at once by the service's
 // own writes (an upload); a change made outside the service (a command-line

@@ -2,8 +2,11 @@
 # Re-makes every golden file from the reference libraries (Debian's
 # /usr/bin/python3 with python3-numpy, python3-scipy, python3-mne,
 # python3-statsmodels). .ci/run
-# calls it and then fails if `git diff testdata` shows any change, so the
-# committed golden files cannot drift from the libraries they quote.
+# calls it and then compares the output with the committed files
+# (.ci/golden_drift.py: structure and strings must be equal, numbers may
+# differ in their last digits between processors), and runs the tests
+# against the regenerated files, so the committed golden files cannot drift
+# from the libraries they quote.
 set -euo pipefail
 cd "$(dirname "$0")/.."
 py=/usr/bin/python3

@@ -202,13 +202,7 @@ func decode(r io.ReaderAt, size int64, name string, opt Options, requireEEG bool
 					if ri >= split {
 						continue
 					}
-					n := int64(s.SamplesPerRecord)
-					dst := rec.Channels[p.channel].Samples[ri*n : (ri+1)*n]
-					if hdr.SampleWidth == 2 {
-						decode16(dst, slot, p.gain, p.offset)
-					} else {
-						decode24(dst, slot, p.gain, p.offset)
-					}
+					p.convert(rec, s, hdr.SampleWidth, ri, slot)
 					continue
 				}
 				tals, unterm, terr := parseTALs(slot)
@@ -356,6 +350,18 @@ type signalPlan struct {
 	gain, offset float64
 }
 
+// convert scales the digital samples of data record ri's slot of signal
+// s (width 2 or 3 bytes) into their place in the plan's channel.
+func (p signalPlan) convert(rec *Recording, s *SignalHeader, width int, ri int64, slot []byte) {
+	n := int64(s.SamplesPerRecord)
+	dst := rec.Channels[p.channel].Samples[ri*n : (ri+1)*n]
+	if width == 2 {
+		decode16(dst, slot, p.gain, p.offset)
+	} else {
+		decode24(dst, slot, p.gain, p.offset)
+	}
+}
+
 // parallelDecodeBytes is the data size from which decode converts the
 // samples of the second half of the records on a second goroutine: below
 // it (a few seconds of a routine recording) a goroutine costs more than it
@@ -385,13 +391,7 @@ func decodeSignals(r io.ReaderAt, name string, hdr *Header, from, to, perChunk i
 				}
 				s := &hdr.Signals[i]
 				slot := rb[s.recordOffset : s.recordOffset+int64(s.SamplesPerRecord*hdr.SampleWidth)]
-				n := int64(s.SamplesPerRecord)
-				dst := rec.Channels[p.channel].Samples[ri*n : (ri+1)*n]
-				if hdr.SampleWidth == 2 {
-					decode16(dst, slot, p.gain, p.offset)
-				} else {
-					decode24(dst, slot, p.gain, p.offset)
-				}
+				p.convert(rec, s, hdr.SampleWidth, ri, slot)
 			}
 		}
 	}

@@ -112,6 +112,21 @@ func (s *Server) addUser(w http.ResponseWriter, r *http.Request) {
 func (s *Server) disableUser(w http.ResponseWriter, r *http.Request) { s.setDisabled(w, r, true) }
 func (s *Server) enableUser(w http.ResponseWriter, r *http.Request)  { s.setDisabled(w, r, false) }
 
+// targetUser reads the account a users-screen form names; when there is
+// none, or the store fails, it has answered and ok is false.
+func (s *Server) targetUser(w http.ResponseWriter, r *http.Request, name string) (u store.User, ok bool) {
+	u, err := s.st.User(r.Context(), name)
+	if errors.Is(err, store.ErrNoUser) {
+		s.renderUsers(w, r, http.StatusNotFound, usersOutcome{errText: "There is no user named " + name + "."})
+		return u, false
+	}
+	if err != nil {
+		s.fail(w, r, err)
+		return u, false
+	}
+	return u, true
+}
+
 func (s *Server) setDisabled(w http.ResponseWriter, r *http.Request, disable bool) {
 	name := pathVar(r, "name")
 	sess, _ := sessionFrom(r.Context())
@@ -119,13 +134,8 @@ func (s *Server) setDisabled(w http.ResponseWriter, r *http.Request, disable boo
 		s.renderUsers(w, r, http.StatusConflict, usersOutcome{errText: "You cannot disable your own account here; another admin, or the command line, can."})
 		return
 	}
-	u, err := s.st.User(r.Context(), name)
-	if errors.Is(err, store.ErrNoUser) {
-		s.renderUsers(w, r, http.StatusNotFound, usersOutcome{errText: "There is no user named " + name + "."})
-		return
-	}
-	if err != nil {
-		s.fail(w, r, err)
+	u, ok := s.targetUser(w, r, name)
+	if !ok {
 		return
 	}
 	changed, err := s.st.SetDisabled(r.Context(), actor(r), u.Name, disable)
@@ -167,13 +177,8 @@ func (s *Server) resetUser(w http.ResponseWriter, r *http.Request) {
 		s.renderUsers(w, r, http.StatusConflict, usersOutcome{errText: "Change your own password on the password screen, where your current password is asked for."})
 		return
 	}
-	u, err := s.st.User(r.Context(), name)
-	if errors.Is(err, store.ErrNoUser) {
-		s.renderUsers(w, r, http.StatusNotFound, usersOutcome{errText: "There is no user named " + name + "."})
-		return
-	}
-	if err != nil {
-		s.fail(w, r, err)
+	u, ok := s.targetUser(w, r, name)
+	if !ok {
 		return
 	}
 	password, err := store.GeneratePassword(u.Name, u.Role)

@@ -196,24 +196,9 @@ func (s *Store) rebuildEntries(ctx context.Context, tx *sql.Tx, version, hash st
 // columns that the comparison of consecutive visits reads (no JSON), the
 // main markers and the flags. Four queries however many patients.
 func entryCourses(ctx context.Context, tx *sql.Tx, ids string) ([]PatientCourse, error) {
-	rows, err := tx.QueryContext(ctx, `SELECT `+patientColumns+` FROM patients WHERE id IN (`+ids+`) ORDER BY id`)
+	out, at, err := patientCourses(ctx, tx, `SELECT `+patientColumns+` FROM patients WHERE id IN (`+ids+`) ORDER BY id`)
 	if err != nil {
-		return nil, fmt.Errorf("patients: %w", err)
-	}
-	var out []PatientCourse
-	at := map[int64]int{}
-	for rows.Next() {
-		p, err := scanPatient(rows)
-		if err != nil {
-			rows.Close()
-			return nil, fmt.Errorf("patients: %w", err)
-		}
-		at[p.ID] = len(out)
-		out = append(out, PatientCourse{Patient: p})
-	}
-	rows.Close()
-	if err := rows.Err(); err != nil {
-		return nil, fmt.Errorf("patients: %w", err)
+		return nil, err
 	}
 	if len(out) == 0 {
 		return nil, nil

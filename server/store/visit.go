@@ -408,27 +408,42 @@ func (s *Store) GroupStamp(ctx context.Context, group string) (string, error) {
 	return stamp, nil
 }
 
-// courses returns the patients matching patientWhere (over patients) with
-// the visits matching visitWhere (over visits v), both taking args.
-func (s *Store) courses(ctx context.Context, patientWhere, visitWhere string, markerNames []string, args ...any) ([]PatientCourse, error) {
-	rows, err := s.r.QueryContext(ctx, `SELECT `+patientColumns+` FROM patients WHERE `+patientWhere+` ORDER BY code`, args...)
+// rowsQuerier is what *sql.DB and *sql.Tx share for reading rows.
+type rowsQuerier interface {
+	QueryContext(ctx context.Context, query string, args ...any) (*sql.Rows, error)
+}
+
+// patientCourses runs query (selecting patientColumns) and returns one
+// course per patient, without visits, in the query's order, with each
+// patient's index in it by ID.
+func patientCourses(ctx context.Context, q rowsQuerier, query string, args ...any) ([]PatientCourse, map[int64]int, error) {
+	rows, err := q.QueryContext(ctx, query, args...)
 	if err != nil {
-		return nil, fmt.Errorf("store: patients: %w", err)
+		return nil, nil, fmt.Errorf("patients: %w", err)
 	}
+	defer rows.Close()
 	var out []PatientCourse
 	index := map[int64]int{}
 	for rows.Next() {
 		p, err := scanPatient(rows)
 		if err != nil {
-			rows.Close()
-			return nil, fmt.Errorf("store: patients: %w", err)
+			return nil, nil, fmt.Errorf("patients: %w", err)
 		}
 		index[p.ID] = len(out)
 		out = append(out, PatientCourse{Patient: p})
 	}
-	rows.Close()
 	if err := rows.Err(); err != nil {
-		return nil, fmt.Errorf("store: patients: %w", err)
+		return nil, nil, fmt.Errorf("patients: %w", err)
+	}
+	return out, index, nil
+}
+
+// courses returns the patients matching patientWhere (over patients) with
+// the visits matching visitWhere (over visits v), both taking args.
+func (s *Store) courses(ctx context.Context, patientWhere, visitWhere string, markerNames []string, args ...any) ([]PatientCourse, error) {
+	out, index, err := patientCourses(ctx, s.r, `SELECT `+patientColumns+` FROM patients WHERE `+patientWhere+` ORDER BY code`, args...)
+	if err != nil {
+		return nil, fmt.Errorf("store: %w", err)
 	}
 	if len(out) == 0 {
 		return nil, nil

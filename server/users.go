@@ -41,7 +41,7 @@ func (s *Server) renderUsers(w http.ResponseWriter, r *http.Request, status int,
 		s.fail(w, r, err)
 		return
 	}
-	log, err := s.st.AuditLog(r.Context(), 100)
+	log, err := s.st.AuditLog(r.Context(), auditEntriesRead)
 	if err != nil {
 		s.fail(w, r, err)
 		return
@@ -61,10 +61,41 @@ func (s *Server) renderUsers(w http.ResponseWriter, r *http.Request, status int,
 		}
 		page.Users = append(page.Users, row)
 	}
-	for _, e := range log {
-		page.Audit = append(page.Audit, web.AuditRow{At: e.At.UTC().Format("2006-01-02T15:04:05Z"), User: e.User, Action: auditText(e.Action), Subject: e.Subject, Client: e.Client})
-	}
+	page.Audit = foldAudit(log, auditRowsShown)
 	s.render(w, r, status, page)
+}
+
+// The users screen reads the latest auditEntriesRead entries and shows at
+// most auditRowsShown rows of them after folding.
+const (
+	auditEntriesRead = 1000
+	auditRowsShown   = 100
+)
+
+// foldAudit turns audit entries (newest first) into the screen's rows,
+// folding a run of consecutive entries with the same user, action, subject
+// and client into one row that says how many there were and since when:
+// paging through a visit's traces writes one entry per page, and forty
+// equal rows would hide the other entries. The log itself keeps every
+// entry; the folding is only on screen.
+func foldAudit(log []store.AuditEntry, limit int) []web.AuditRow {
+	const stamp = "2006-01-02T15:04:05Z"
+	var rows []web.AuditRow
+	var last store.AuditEntry
+	for _, e := range log {
+		if n := len(rows); n > 0 && e.User == last.User && e.Action == last.Action && e.Subject == last.Subject && e.Client == last.Client {
+			rows[n-1].Times++
+			rows[n-1].First = e.At.UTC().Format(stamp)
+			continue
+		}
+		if len(rows) == limit {
+			break
+		}
+		rows = append(rows, web.AuditRow{At: e.At.UTC().Format(stamp), User: e.User, Action: auditText(e.Action),
+			Subject: e.Subject, Client: e.Client, Times: 1})
+		last = e
+	}
+	return rows
 }
 
 // actor is the signed-in user making a change, as the audit log names them.

@@ -450,9 +450,12 @@ type PasswordPage struct {
 
 func (*PasswordPage) template() string { return "password.html" }
 
-// AuditRow is one audit entry.
+// AuditRow is one audit entry, or Times equal consecutive entries of which
+// the newest was at At and the oldest at First.
 type AuditRow struct {
 	At, User, Action, Subject, Client string
+	Times                             int
+	First                             string
 }
 
 // ErrorPage tells a person what went wrong in words meant for them.

@@ -178,11 +178,14 @@ func decode(r io.ReaderAt, size int64, name string, opt Options, requireEEG bool
 		annotatedEnd  = math.Inf(-1)
 		events        []Annotation
 	)
-	for r0 := int64(0); r0 < hdr.Records; r0 += perChunk {
-		nr := perChunk
-		if hdr.Records-r0 < nr {
-			nr = hdr.Records - r0
-		}
+	// Without an annotation signal the records from split on hold nothing
+	// for this loop: the second goroutine reads them alone.
+	end := hdr.Records
+	if firstAnn < 0 {
+		end = split
+	}
+	for r0 := int64(0); r0 < end; r0 += perChunk {
+		nr := min(perChunk, end-r0)
 		chunk := buf[:nr*hdr.RecordBytes]
 		at := hdr.HeaderBytes + r0*hdr.RecordBytes
 		if err := readFull(r, chunk, at); err != nil {

@@ -10,13 +10,17 @@ import (
 // TestParallelDecodeEqualsSerial decodes files above parallelDecodeBytes
 // (where the second half of the records is converted on a second
 // goroutine) with GOMAXPROCS 2 and 1 and wants the same recording, sample
-// for sample, for EDF+C and BDF+C; and the same error for a file cut short
+// for sample, for EDF+C, BDF+C and a plain EDF (no annotation signal);
+// and the same recording, read as far as it goes, from each file cut short
 // in its second half.
 func TestParallelDecodeEqualsSerial(t *testing.T) {
-	build := func(bdf bool, records int) []byte {
+	build := func(bdf, plain bool, records int) []byte {
 		f := testFile{Reserved: "EDF+C", NRecords: records, BDF: bdf}
 		if bdf {
 			f.Reserved = "BDF+C"
+		}
+		if plain {
+			f.Reserved = ""
 		}
 		for i, l := range Standard19 {
 			s := eegSignal("EEG "+l+"-REF", 500)
@@ -24,11 +28,13 @@ func TestParallelDecodeEqualsSerial(t *testing.T) {
 			s.Digital = func(r, j int) int { return (r*7919+j*104729+k*31)%60000 - 30000 }
 			f.Signals = append(f.Signals, s)
 		}
-		ann := annotationSignal(30, 1, nil)
-		if bdf {
-			ann.Label = "BDF Annotations"
+		if !plain { // a plain EDF has no annotation signal: the first goroutine stops half way
+			ann := annotationSignal(30, 1, nil)
+			if bdf {
+				ann.Label = "BDF Annotations"
+			}
+			f.Signals = append(f.Signals, ann)
 		}
-		f.Signals = append(f.Signals, ann)
 		return f.build()
 	}
 	decodeWith := func(procs int, data []byte) (*Recording, error) {
@@ -38,10 +44,11 @@ func TestParallelDecodeEqualsSerial(t *testing.T) {
 	for _, tt := range []struct {
 		name    string
 		bdf     bool
+		plain   bool
 		records int
-	}{{"EDF+C", false, 460}, {"BDF+C", true, 310}} {
+	}{{"EDF+C", false, false, 460}, {"BDF+C", true, false, 310}, {"EDF", false, true, 460}} {
 		t.Run(tt.name, func(t *testing.T) {
-			data := build(tt.bdf, tt.records)
+			data := build(tt.bdf, tt.plain, tt.records)
 			if len(data) < parallelDecodeBytes {
 				t.Fatalf("test file of %d bytes is below the parallel threshold %d", len(data), parallelDecodeBytes)
 			}

@@ -58,31 +58,25 @@ func TestSaveVisitUnderBudget(t *testing.T) {
 	}
 }
 
-// BenchmarkCohort5000 reads a cohort of 5,000 patients with 3 visits each
-// (49 markers a visit) the way the cohort page does: AllVisitRecords with
-// the few marker names it shows, and with all markers (the export); and,
-// with one patient in 50 a control (100 controls), the controls' stamp the
-// norms cache checks on every cohort or course build and the controls'
-// records a refit reads.
-func BenchmarkCohort5000(b *testing.B) {
-	s := mustOpen(b)
+// fillPatients writes n patients (codes C-00000…, born 1940–1969) of
+// group(i), each with `visits` yearly visits from firstYear (aged 70, a
+// recording row, sampleAnalysis(1) without display products), in one
+// transaction: the bulk data of the cohort benchmarks.
+func fillPatients(b *testing.B, s *Store, n, visits, firstYear int, group func(i int) string) {
+	b.Helper()
 	ctx := context.Background()
 	a := sampleAnalysis(1)
 	a.Result.Display = metrics.Display{}
 	err := s.inTx(ctx, func(tx *sql.Tx) error {
-		for i := 0; i < 5000; i++ {
-			group := "patient"
-			if i%50 == 0 {
-				group = "control"
-			}
-			pid, err := s.upsertPatient(ctx, tx, Patient{Code: fmt.Sprintf("C-%05d", i), BirthYear: 1940 + i%30, Group: group})
+		for i := 0; i < n; i++ {
+			pid, err := s.upsertPatient(ctx, tx, Patient{Code: fmt.Sprintf("C-%05d", i), BirthYear: 1940 + i%30, Group: group(i)})
 			if err != nil {
 				return err
 			}
-			for k := 0; k < 3; k++ {
+			for k := 0; k < visits; k++ {
 				var vid int64
-				if err := tx.QueryRowContext(ctx, `INSERT INTO visits (patient_id, visit_date, created_at) VALUES (?, ?, '') RETURNING id`,
-					pid, fmt.Sprintf("%d-03-01", 2020+k)).Scan(&vid); err != nil {
+				if err := tx.QueryRowContext(ctx, `INSERT INTO visits (patient_id, visit_date, age_years, age_known, created_at)
+					VALUES (?, ?, 70, 1, '') RETURNING id`, pid, fmt.Sprintf("%d-03-01", firstYear+k)).Scan(&vid); err != nil {
 					return err
 				}
 				if _, err := tx.ExecContext(ctx, `INSERT INTO recordings (visit_id, sha256, format, size, role, created_at) VALUES (?, ?, 'EDF', 1, 'single', '')`,
@@ -99,6 +93,23 @@ func BenchmarkCohort5000(b *testing.B) {
 	if err != nil {
 		b.Fatal(err)
 	}
+}
+
+// BenchmarkCohort5000 reads a cohort of 5,000 patients with 3 visits each
+// (49 markers a visit) the way the cohort page does: AllVisitRecords with
+// the few marker names it shows, and with all markers (the export); and,
+// with one patient in 50 a control (100 controls), the controls' stamp the
+// norms cache checks on every cohort or course build and the controls'
+// records a refit reads.
+func BenchmarkCohort5000(b *testing.B) {
+	s := mustOpen(b)
+	ctx := context.Background()
+	fillPatients(b, s, 5000, 3, 2020, func(i int) string {
+		if i%50 == 0 {
+			return "control"
+		}
+		return "patient"
+	})
 	b.Run("cohort-markers", func(b *testing.B) {
 		for i := 0; i < b.N; i++ {
 			pcs, err := s.AllVisitRecords(ctx, metrics.PDRFrequency, metrics.ThetaAlphaRatio)

@@ -3,13 +3,10 @@ package store
 import (
 	"context"
 	"database/sql"
-	"encoding/json"
 	"fmt"
 	"strings"
 	"sync"
 
-	"longwave/ingest"
-	"longwave/metrics"
 	"longwave/trends"
 )
 
@@ -237,20 +234,13 @@ func entryCourses(ctx context.Context, tx *sql.Tx, ids string) ([]PatientCourse,
 		return nil, fmt.Errorf("visits: %w", err)
 	}
 	names := entryMarkers()
-	err = each(ctx, tx, `SELECT x.visit_id, x.name, x.region, x.state, x.value, x.unit, x.computable, x.reason,
-		x.interval_se, x.interval_low, x.interval_high, x.interval_level, x.interval_method, x.interval_resamples
+	err = each(ctx, tx, `SELECT `+markerRowColumns+`
 		FROM markers x WHERE `+visitWhere+` AND x.name IN (?`+strings.Repeat(`, ?`, len(names)-1)+`)
 		ORDER BY x.visit_id, x.id`, names, func(sc func(...any) error) error {
-		var id int64
-		var m metrics.Marker
-		var state string
-		var iv intervalScan
-		if err := sc(append([]any{&id, &m.Name, &m.Region, &state, &m.Value, &m.Unit, &m.Computable, &m.Reason},
-			iv.dest()...)...); err != nil {
+		id, m, err := scanMarkerRow(sc)
+		if err != nil {
 			return err
 		}
-		m.State = ingest.EyeState(state)
-		m.Uncertainty = iv.uncertainty()
 		if r, ok := visits[id]; ok {
 			v := &out[r.patient].Visits[r.visit]
 			v.Markers = append(v.Markers, m)
@@ -260,16 +250,10 @@ func entryCourses(ctx context.Context, tx *sql.Tx, ids string) ([]PatientCourse,
 	if err != nil {
 		return nil, fmt.Errorf("markers: %w", err)
 	}
-	err = each(ctx, tx, `SELECT x.visit_id, x.rule, x.severity, x.markers_json, x.reason, x.source FROM flags x
+	err = each(ctx, tx, `SELECT `+flagRowColumns+` FROM flags x
 		WHERE `+visitWhere+` ORDER BY x.visit_id, x.id`, nil, func(sc func(...any) error) error {
-		var id int64
-		var f metrics.Flag
-		var sev, mj string
-		if err := sc(&id, &f.Rule, &sev, &mj, &f.Reason, &f.Source); err != nil {
-			return err
-		}
-		f.Severity = metrics.Severity(sev)
-		if err := json.Unmarshal([]byte(mj), &f.Markers); err != nil {
+		id, f, err := scanFlagRow(sc)
+		if err != nil {
 			return err
 		}
 		if r, ok := visits[id]; ok {

@@ -251,21 +251,7 @@ func TestKeptEntriesMatchRebuild(t *testing.T) {
 // for other settings, or unreadable are rebuilt when read, and kept.
 func TestCohortEntriesRebuildsStale(t *testing.T) {
 	ctx := context.Background()
-	all, err := migrations.All()
-	if err != nil {
-		t.Fatal(err)
-	}
-	var before []migrations.Migration
-	for _, m := range all {
-		if m.Version < 6 {
-			before = append(before, m)
-		}
-	}
-	path := filepath.Join(t.TempDir(), "old.db")
-	old, err := openAt(path, before)
-	if err != nil {
-		t.Fatal(err)
-	}
+	path, old := openBefore0006(t)
 	rng := rand.New(rand.NewPCG(5, 5))
 	for i := 0; i < 12; i++ {
 		nv := sampleVisit(fmt.Sprintf("MC-S%02d", i%4), fmt.Sprintf("%d-05-01", 2018+i/4), []byte(fmt.Sprint("stale ", i)), uint64(i))
@@ -328,30 +314,7 @@ func TestMergeKeepsEntries(t *testing.T) {
 func BenchmarkCohortEntries5000(b *testing.B) {
 	s := mustOpen(b)
 	ctx := context.Background()
-	a := sampleAnalysis(1)
-	a.Result.Display = metrics.Display{}
-	err := s.inTx(ctx, func(tx *sql.Tx) error {
-		for i := 0; i < 5000; i++ {
-			pid, err := s.upsertPatient(ctx, tx, Patient{Code: fmt.Sprintf("C-%05d", i), BirthYear: 1940 + i%30})
-			if err != nil {
-				return err
-			}
-			for k := 0; k < 4; k++ {
-				var vid int64
-				if err := tx.QueryRowContext(ctx, `INSERT INTO visits (patient_id, visit_date, age_years, age_known, created_at)
-					VALUES (?, ?, 70, 1, '') RETURNING id`, pid, fmt.Sprintf("%d-03-01", 2019+k)).Scan(&vid); err != nil {
-					return err
-				}
-				if err := s.writeAnalysis(ctx, tx, vid, a); err != nil {
-					return err
-				}
-			}
-		}
-		return nil
-	})
-	if err != nil {
-		b.Fatal(err)
-	}
+	fillPatients(b, s, 5000, 4, 2019, func(int) string { return "" })
 	s.KeepCohortFor(keptVersion, keptHash)
 	if _, err := s.CohortEntries(ctx); err != nil { // kept for these settings
 		b.Fatal(err)
@@ -388,21 +351,8 @@ func wantOverlay(tb testing.TB, s *Store, id int64) []metrics.Spectrum {
 // migration 0006 gets them from its display products.
 func TestOverlaySpectra(t *testing.T) {
 	ctx := context.Background()
-	all, err := migrations.All()
-	if err != nil {
-		t.Fatal(err)
-	}
-	var before []migrations.Migration
-	for _, m := range all {
-		if m.Version < 6 {
-			before = append(before, m)
-		}
-	}
-	path := filepath.Join(t.TempDir(), "old.db")
-	old, err := openAt(path, before)
-	if err != nil {
-		t.Fatal(err)
-	}
+	path, old := openBefore0006(t)
+	var err error
 	var ids []int64
 	for i := 0; i < 4; i++ {
 		if i == 2 {
@@ -526,4 +476,26 @@ func TestSpectraCodec(t *testing.T) {
 	if _, err := decodeSpectra([]byte{0xff, 0xff, 0xff, 0x0f}); !errors.Is(err, errSpectra) {
 		t.Errorf("huge count: %v, want errSpectra", err)
 	}
+}
+
+// openBefore0006 opens a new database at a temporary path with the
+// migrations before 0006 only (no kept cohort entries, no overlay spectra).
+func openBefore0006(t *testing.T) (string, *Store) {
+	t.Helper()
+	all, err := migrations.All()
+	if err != nil {
+		t.Fatal(err)
+	}
+	var before []migrations.Migration
+	for _, m := range all {
+		if m.Version < 6 {
+			before = append(before, m)
+		}
+	}
+	path := filepath.Join(t.TempDir(), "old.db")
+	old, err := openAt(path, before)
+	if err != nil {
+		t.Fatal(err)
+	}
+	return path, old
 }

@@ -619,25 +619,17 @@ func (s *Store) loadVisits(ctx context.Context, where string, markerNames []stri
 		return nil, fmt.Errorf("store: recordings: %w", err)
 	}
 
-	mq := `SELECT x.visit_id, x.name, x.region, x.state, x.value, x.unit, x.computable, x.reason,
-		x.interval_se, x.interval_low, x.interval_high, x.interval_level, x.interval_method, x.interval_resamples
-		FROM markers x` + join
+	mq := `SELECT ` + markerRowColumns + ` FROM markers x` + join
 	margs := args
 	if len(markerNames) > 0 {
 		mq += and + `x.name IN (?` + strings.Repeat(`, ?`, len(markerNames)-1) + `)`
 		margs = append(append([]any{}, args...), anySlice(markerNames)...)
 	}
 	err = each(ctx, tx, mq+` ORDER BY x.visit_id, x.id`, margs, func(sc func(...any) error) error {
-		var id int64
-		var m metrics.Marker
-		var state string
-		var iv intervalScan
-		if err := sc(append([]any{&id, &m.Name, &m.Region, &state, &m.Value, &m.Unit, &m.Computable, &m.Reason},
-			iv.dest()...)...); err != nil {
+		id, m, err := scanMarkerRow(sc)
+		if err != nil {
 			return err
 		}
-		m.State = ingest.EyeState(state)
-		m.Uncertainty = iv.uncertainty()
 		if i, ok := index[id]; ok {
 			out[i].Markers = append(out[i].Markers, m)
 		}
@@ -647,16 +639,10 @@ func (s *Store) loadVisits(ctx context.Context, where string, markerNames []stri
 		return nil, fmt.Errorf("store: markers: %w", err)
 	}
 
-	err = each(ctx, tx, `SELECT x.visit_id, x.rule, x.severity, x.markers_json, x.reason, x.source FROM flags x`+join+
+	err = each(ctx, tx, `SELECT `+flagRowColumns+` FROM flags x`+join+
 		` ORDER BY x.visit_id, x.id`, args, func(sc func(...any) error) error {
-		var id int64
-		var f metrics.Flag
-		var sev, mj string
-		if err := sc(&id, &f.Rule, &sev, &mj, &f.Reason, &f.Source); err != nil {
-			return err
-		}
-		f.Severity = metrics.Severity(sev)
-		if err := json.Unmarshal([]byte(mj), &f.Markers); err != nil {
+		id, f, err := scanFlagRow(sc)
+		if err != nil {
 			return err
 		}
 		if i, ok := index[id]; ok {
@@ -668,6 +654,45 @@ func (s *Store) loadVisits(ctx context.Context, where string, markerNames []stri
 		return nil, fmt.Errorf("store: flags: %w", err)
 	}
 	return out, nil
+}
+
+// markerRowColumns are the columns of a markers row (alias x) that
+// scanMarkerRow reads, the visit ID first.
+const markerRowColumns = `x.visit_id, x.name, x.region, x.state, x.value, x.unit, x.computable, x.reason,
+		x.interval_se, x.interval_low, x.interval_high, x.interval_level, x.interval_method, x.interval_resamples`
+
+// scanMarkerRow reads one row of markerRowColumns.
+func scanMarkerRow(sc func(...any) error) (int64, metrics.Marker, error) {
+	var id int64
+	var m metrics.Marker
+	var state string
+	var iv intervalScan
+	if err := sc(append([]any{&id, &m.Name, &m.Region, &state, &m.Value, &m.Unit, &m.Computable, &m.Reason},
+		iv.dest()...)...); err != nil {
+		return 0, m, err
+	}
+	m.State = ingest.EyeState(state)
+	m.Uncertainty = iv.uncertainty()
+	return id, m, nil
+}
+
+// flagRowColumns are the columns of a flags row (alias x) that scanFlagRow
+// reads, the visit ID first.
+const flagRowColumns = `x.visit_id, x.rule, x.severity, x.markers_json, x.reason, x.source`
+
+// scanFlagRow reads one row of flagRowColumns.
+func scanFlagRow(sc func(...any) error) (int64, metrics.Flag, error) {
+	var id int64
+	var f metrics.Flag
+	var sev, mj string
+	if err := sc(&id, &f.Rule, &sev, &mj, &f.Reason, &f.Source); err != nil {
+		return 0, f, err
+	}
+	f.Severity = metrics.Severity(sev)
+	if err := json.Unmarshal([]byte(mj), &f.Markers); err != nil {
+		return 0, f, err
+	}
+	return id, f, nil
 }
 
 func anySlice(ss []string) []any {

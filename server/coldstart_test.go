@@ -54,8 +54,9 @@ func restart(t testing.TB, path string) (*Server, *store.Store, string) {
 	return e.srv, st, tok
 }
 
-// timedGet serves one GET through the handler and returns how long it took.
-func timedGet(t testing.TB, h http.Handler, tok, path string) time.Duration {
+// timedGet serves one GET through the handler and returns how long it
+// took and the body.
+func timedGet(t testing.TB, h http.Handler, tok, path string) (time.Duration, string) {
 	t.Helper()
 	req := httptest.NewRequest(http.MethodGet, path, nil)
 	req.AddCookie(&http.Cookie{Name: sessionCookie, Value: tok})
@@ -66,7 +67,7 @@ func timedGet(t testing.TB, h http.Handler, tok, path string) time.Duration {
 	if w.Code != http.StatusOK {
 		t.Fatalf("GET %s: status %d", path, w.Code)
 	}
-	return d
+	return d, w.Body.String()
 }
 
 func TestColdStart(t *testing.T) {
@@ -80,12 +81,32 @@ func TestColdStart(t *testing.T) {
 	if err := e.st.Close(); err != nil {
 		t.Fatal(err)
 	}
+	st0, err := store.Open(path)
+	if err != nil {
+		t.Fatal(err)
+	}
+	list, err := st0.Patients(t.Context())
+	if err != nil {
+		t.Fatal(err)
+	}
+	patients := len(list)
+	if err := st0.Close(); err != nil {
+		t.Fatal(err)
+	}
 	bestCohort, bestCourse := time.Hour, time.Hour
 	for try := 0; try < coldTries; try++ {
 		srv, st, tok := restart(t, path)
 		h := srv.Handler()
-		dc := timedGet(t, h, tok, "/cohort?sort=-overdue")
-		dp := timedGet(t, h, tok, "/patients/LW-LOAD40")
+		dc, cohort := timedGet(t, h, tok, "/cohort?sort=-overdue")
+		dp, course := timedGet(t, h, tok, "/patients/LW-LOAD40")
+		// A fast page must also be the whole page: every patient counted,
+		// every one of the 40 visits listed.
+		if want := fmt.Sprintf("%d patients match", patients); !strings.Contains(cohort, want) {
+			t.Fatalf("restart %d: the cohort page does not say %q", try+1, want)
+		}
+		if n := strings.Count(course, `<td class="date"><a href=`); n != 40 {
+			t.Fatalf("restart %d: the course page lists %d visits, want 40", try+1, n)
+		}
 		t.Logf("restart %d: first cohort page %v, first 40-visit course page %v", try+1,
 			dc.Round(100*time.Microsecond), dp.Round(100*time.Microsecond))
 		bestCohort, bestCourse = min(bestCohort, dc), min(bestCourse, dp)

@@ -140,6 +140,7 @@ func New(cfg Config, st *store.Store, pipe *intake.Pipeline, opts ...Option) (*S
 		return nil, errors.New("server: a store and an intake pipeline are needed")
 	}
 	cfg.fill()
+	go store.PreparePasswordChecks() // on its own core while the server starts
 	if (cfg.TLSCert == "") != (cfg.TLSKey == "") {
 		return nil, errors.New("server: TLS needs both a certificate and a key file")
 	}

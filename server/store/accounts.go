@@ -20,6 +20,7 @@ import (
 	"encoding/hex"
 	"errors"
 	"fmt"
+	"sync"
 	"time"
 	"unicode"
 	"unicode/utf8"
@@ -446,8 +447,12 @@ func (s *Store) SetDisabled(ctx context.Context, by Actor, name string, disabled
 
 // dummyHash is compared against when the user does not exist, so that an
 // unknown name costs the same bcrypt work as a wrong password (no timing
-// oracle for which names exist). It is the hash of a random string.
-var dummyHash = func() []byte {
+// oracle for which names exist). It is the hash of a random string, made
+// on first use rather than at start-up: bcrypt at its default cost takes
+// about 70 ms, which every command of the binary would otherwise pay,
+// including those that never check a password. The server makes it when
+// it starts (PreparePasswordChecks), so no sign-in pays for it.
+var dummyHash = sync.OnceValue(func() []byte {
 	b := make([]byte, 24)
 	_, _ = rand.Read(b)
 	h, err := bcrypt.GenerateFromPassword(b, bcrypt.DefaultCost)
@@ -455,7 +460,12 @@ var dummyHash = func() []byte {
 		panic("store: cannot make the dummy bcrypt hash: " + err.Error()) // programmer error: bcrypt refuses its own default cost
 	}
 	return h
-}()
+})
+
+// PreparePasswordChecks does once, ahead of the first sign-in, the work
+// CheckPassword needs for an unknown name, so that the first such attempt
+// takes no longer than later ones.
+func PreparePasswordChecks() { dummyHash() }
 
 // CheckPassword returns the user when name and password match an enabled
 // user, else ErrBadCredentials (the same error for an unknown name, a wrong
@@ -471,7 +481,7 @@ func (s *Store) CheckPassword(ctx context.Context, name, password string) (User,
 		`SELECT id, name, role, password_hash, created_at, disabled FROM users WHERE name = ?`, name).
 		Scan(&u.ID, &u.Name, &u.Role, &hash, &created, &disabled)
 	if errors.Is(err, sql.ErrNoRows) || len(password) > maxPasswordBytes {
-		_ = bcrypt.CompareHashAndPassword(dummyHash, bcryptInput(password))
+		_ = bcrypt.CompareHashAndPassword(dummyHash(), bcryptInput(password))
 		return User{}, ErrBadCredentials
 	}
 	if err != nil {

@@ -276,6 +276,14 @@ func parallel(n, workers int, fn func(worker, i int)) {
 // the channel's own samples (the packed position never passes the read
 // position). It also measures each channel's level for the bad-channel
 // rules.
+//
+// Channels are filtered two at a time (filterPair). The pairs' work space
+// (two padded float64 copies of two channels per worker, about 30 MB on 30
+// minutes of 21 channels at 500 Hz) is garbage once the stage ends; one
+// collection then lets the later stages reuse it rather than grow the
+// process by as much (the heap is sample arrays without pointers, so the
+// collection takes well under a millisecond). Measured on that recording:
+// peak resident memory 158 MiB without it, 126 MiB with it.
 func (a *analysis) filter(rec *ingest.Recording) error {
 	a.detectLine(rec)
 	slow := append(SOS{}, a.hp...)
@@ -292,14 +300,35 @@ func (a *analysis) filter(rec *ingest.Recording) error {
 	work2 := make([][]float64, a.workers)
 	a.level = make([]float64, len(a.data))
 	win := max(2, int(math.Round(a.s.Channel.WindowSeconds*a.fs)))
-	parallel(len(a.data), a.workers, func(w, c int) {
+	// Channels go two at a time through filterPair (two recurrences
+	// overlap in the processor); with an odd count the first goes alone,
+	// as the first job, so the pairs even out the workers' ends.
+	var jobs [][]int
+	c := 0
+	if len(a.data)%2 == 1 {
+		jobs, c = append(jobs, []int{0}), 1
+	}
+	for ; c+1 < len(a.data); c += 2 {
+		jobs = append(jobs, []int{c, c + 1})
+	}
+	parallel(len(jobs), a.workers, func(w, j int) {
 		if work[w] == nil {
-			work[w] = make([]float64, lenFast)
-			work2[w] = make([]float64, lenSlow)
+			n := min(2, len(a.data))
+			work[w] = make([]float64, n*lenFast)
+			work2[w] = make([]float64, n*lenSlow)
 		}
-		a.data[c] = a.filterOne(a.data[c], work[w], work2[w])
-		a.level[c] = windowLevel(a.data[c], a.segs, win)
+		job := jobs[j]
+		if len(job) == 1 {
+			a.data[job[0]] = a.filterOne(a.data[job[0]], work[w], work2[w])
+		} else {
+			a.data[job[0]], a.data[job[1]] = a.filterPair(a.data[job[0]], a.data[job[1]], work[w], work2[w])
+		}
+		for _, c := range job {
+			a.level[c] = windowLevel(a.data[c], a.segs, win)
+		}
 	})
+	work, work2 = nil, nil
+	runtime.GC()
 	return nil
 }
 

@@ -4,6 +4,8 @@ import (
 	"math"
 	"math/rand/v2"
 	"testing"
+
+	"longwave/ingest"
 )
 
 // filtTol is the agreement asked of FiltFilt against scipy: 1e-9 of the
@@ -157,4 +159,48 @@ func BenchmarkFiltFilt(b *testing.B) {
 		FiltFilt(dst, x, sos)
 	}
 	b.ReportMetric(float64(b.Elapsed().Nanoseconds())/float64(b.N)/float64(len(sos))/1e6, "ms/section")
+}
+
+// TestFilterPairEqualsFilterOne: two channels filtered together by
+// filterPair are bit for bit what filterOne makes of each alone (the pair
+// runs each channel's operations in the same order), over segments of
+// several lengths (one too short to filter) and both stages' cascades.
+func TestFilterPairEqualsFilterOne(t *testing.T) {
+	a := &analysis{q: 4}
+	var err error
+	if a.lp, err = ButterLowpass(4, 45, 500); err != nil {
+		t.Fatal(err)
+	}
+	hp, _ := ButterHighpass(2, 0.5, 125)
+	notch, _ := IIRNotch(50, 30, 125)
+	for _, slow := range []SOS{hp, append(append(SOS{}, hp...), notch...)} {
+		a.slow = slow
+		a.segsIn, a.segs = nil, nil
+		next, first := 0, 0
+		for _, n := range []int{40_001, 20, 9_998} {
+			a.segsIn = append(a.segsIn, ingest.Segment{First: first, Count: n})
+			c := (n + a.q - 1) / a.q
+			a.segs = append(a.segs, ingest.Segment{First: next, Count: c})
+			first, next = first+n, next+c
+		}
+		a.nIn, a.n = first, next
+		r := rand.New(rand.NewPCG(5, 6))
+		x, y := make([]float32, a.nIn), make([]float32, a.nIn)
+		for i := range x {
+			x[i] = float32(30 * r.NormFloat64())
+			y[i] = float32(10*r.NormFloat64() + 200)
+		}
+		lenFast, lenSlow := a.workLens()
+		one := func(v []float32) []float32 {
+			return a.filterOne(append([]float32(nil), v...), make([]float64, lenFast), make([]float64, lenSlow))
+		}
+		wantX, wantY := one(x), one(y)
+		gotX, gotY := a.filterPair(x, y, make([]float64, 2*lenFast), make([]float64, 2*lenSlow))
+		for i := range wantX {
+			if math.Float32bits(gotX[i]) != math.Float32bits(wantX[i]) || math.Float32bits(gotY[i]) != math.Float32bits(wantY[i]) {
+				t.Fatalf("%d slow sections, sample %d: pair (%g, %g), alone (%g, %g)",
+					len(slow), i, gotX[i], gotY[i], wantX[i], wantY[i])
+			}
+		}
+	}
 }

@@ -6,7 +6,7 @@ import (
 
 	"longwave/ingest"
 
-	"gonum.org/v1/gonum/dsp/fourier"
+	"longwave/metrics/fft"
 )
 
 // Rule names of the artefact rules, the keys of Quality.RejectedByRule.
@@ -35,19 +35,19 @@ type epochStat struct {
 // the mean is removed, a periodic Hann window applied, and the one-sided
 // density P_k = c·|X_k|² with c = 2/(fs·Σw²) (1/(fs·Σw²) at DC and Nyquist)
 // summed as band power Σ P_k·Δf over the bins k·Δf in [lo, hi). One value
-// per goroutine: it holds the FFT workspace.
+// per goroutine: it holds the transform's work space.
 type periodogram struct {
-	fs   float64
-	win  []float64
-	buf  []float64
-	coef []complex128
-	fft  *fourier.FFT
-	norm float64
+	fs          float64
+	win         []float64
+	buf, buf2   []float64
+	coef, coef2 []complex128
+	fft         *fft.Real
+	norm        float64
 }
 
 func newPeriodogram(n int, fs float64) *periodogram {
-	p := &periodogram{fs: fs, win: make([]float64, n), buf: make([]float64, n),
-		coef: make([]complex128, n/2+1), fft: fourier.NewFFT(n)}
+	p := &periodogram{fs: fs, win: make([]float64, n), buf: make([]float64, n), buf2: make([]float64, n),
+		coef: make([]complex128, n/2+1), coef2: make([]complex128, n/2+1), fft: fft.NewReal(n)}
 	var ss float64
 	for i := range p.win {
 		w := 0.5 - 0.5*math.Cos(2*math.Pi*float64(i)/float64(n))
@@ -61,6 +61,25 @@ func newPeriodogram(n int, fs float64) *periodogram {
 // stat fills the epoch statistics of x (one epoch, len(x) = the
 // periodogram's length).
 func (p *periodogram) stat(x []float32, r ArtefactRules, alpha, slow Band) epochStat {
+	st := p.prepare(x, p.buf)
+	p.fft.Coefficients(p.coef, p.buf)
+	p.bands(&st, p.coef, r, alpha, slow)
+	return st
+}
+
+// stat2 is stat of two epochs at once, from one complex transform of the
+// pair (fft.Real.Pair): the same values as two calls of stat, to rounding.
+func (p *periodogram) stat2(x, y []float32, r ArtefactRules, alpha, slow Band) (epochStat, epochStat) {
+	sx, sy := p.prepare(x, p.buf), p.prepare(y, p.buf2)
+	p.fft.Pair(p.coef, p.coef2, p.buf, p.buf2)
+	p.bands(&sx, p.coef, r, alpha, slow)
+	p.bands(&sy, p.coef2, r, alpha, slow)
+	return sx, sy
+}
+
+// prepare measures the time-domain statistics of x and writes its
+// demeaned, windowed samples to buf.
+func (p *periodogram) prepare(x []float32, buf []float64) epochStat {
 	var sum float64
 	lo, hi := float64(x[0]), float64(x[0])
 	for _, v := range x {
@@ -79,12 +98,16 @@ func (p *periodogram) stat(x []float32, r ArtefactRules, alpha, slow Band) epoch
 	for i, v := range x {
 		d := float64(v) - mean
 		ss += d * d
-		p.buf[i] = d * p.win[i]
+		buf[i] = d * p.win[i]
 	}
-	st := epochStat{PeakToPeak: hi - lo, Variance: ss / float64(n)}
-	p.fft.Coefficients(p.coef, p.buf)
+	return epochStat{PeakToPeak: hi - lo, Variance: ss / float64(n)}
+}
+
+// bands adds the band powers of the coefficients coef to st.
+func (p *periodogram) bands(st *epochStat, coef []complex128, r ArtefactRules, alpha, slow Band) {
+	n := len(p.win)
 	df := p.fs / float64(n)
-	for k, c := range p.coef {
+	for k, c := range coef {
 		f := float64(k) * df
 		pw := real(c)*real(c) + imag(c)*imag(c)
 		if k == 0 || (n%2 == 0 && k == n/2) {
@@ -106,7 +129,6 @@ func (p *periodogram) stat(x []float32, r ArtefactRules, alpha, slow Band) epoch
 			st.Slow += pw
 		}
 	}
-	return st
 }
 
 // applyRules marks each epoch with the first artefact rule it fails (order of

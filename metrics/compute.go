@@ -467,10 +467,16 @@ func (a *analysis) measureEpochs() {
 		if pgs[w] == nil {
 			pgs[w] = newPeriodogram(a.length, a.fs)
 		}
-		c := used[i]
+		c, p, r, alpha, slow := used[i], pgs[w], a.s.Artefacts, a.s.Bands.Alpha, a.s.Bands.Delta
 		st := make([]epochStat, len(a.eps))
-		for e, ep := range a.eps {
-			st[e] = pgs[w].stat(a.data[c][ep.First:ep.First+a.length], a.s.Artefacts, a.s.Bands.Alpha, a.s.Bands.Delta)
+		epoch := func(e int) []float32 { return a.data[c][a.eps[e].First : a.eps[e].First+a.length] }
+		// Two epochs per transform (periodogram.stat2).
+		e := 0
+		for ; e+1 < len(a.eps); e += 2 {
+			st[e], st[e+1] = p.stat2(epoch(e), epoch(e+1), r, alpha, slow)
+		}
+		if e < len(a.eps) {
+			st[e] = p.stat(epoch(e), r, alpha, slow)
 		}
 		a.stats[c] = st
 	})

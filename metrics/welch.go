@@ -4,7 +4,7 @@ import (
 	"fmt"
 	"math"
 
-	"gonum.org/v1/gonum/dsp/fourier"
+	"longwave/metrics/fft"
 )
 
 // Welch accumulates a power spectral density estimate by Welch's method
@@ -32,14 +32,14 @@ import (
 // the PSD then equals scipy.signal.welch applied to each stretch separately,
 // the results averaged with weights equal to each stretch's segment count —
 // that is, the plain mean over all segments. A Welch value is not safe for
-// concurrent use; it owns one gonum FFT with its work buffers.
+// concurrent use; it owns one transform (package fft) with its work buffers.
 type Welch struct {
 	fs       float64
 	segment  int
 	step     int
 	window   []float64
 	scale    float64 // 1/(fs·Σw²)
-	fft      *fourier.FFT
+	fft      *fft.Real
 	buf      []float64
 	coef     []complex128
 	sum      []float64 // Σ over segments of the one-sided periodogram
@@ -60,7 +60,7 @@ func NewWelch(fs float64, segment, overlap int) *Welch {
 		segment: segment,
 		step:    segment - overlap,
 		window:  make([]float64, segment),
-		fft:     fourier.NewFFT(segment),
+		fft:     fft.NewReal(segment),
 		buf:     make([]float64, segment),
 		coef:    make([]complex128, segment/2+1),
 		sum:     make([]float64, segment/2+1),

@@ -248,7 +248,22 @@ def specparam_cases():
         "settings": st, "cases": cases})
 
 
+# --- 6. Real discrete Fourier transforms (package metrics/fft) ---------------
+def fft_cases():
+    rng = np.random.default_rng(20261203)
+    cases = []
+    # Lengths of the analysis (125 and 500 points at 125 Hz; 128/512 at
+    # 128 Hz; 200/800 at 200 Hz), every radix path (4, 2, 3, 5 and primes
+    # above five) and the smallest ones.
+    for n in (1, 2, 3, 4, 5, 6, 7, 8, 9, 12, 15, 16, 25, 27, 49, 77, 100, 121, 125, 128, 143,
+              200, 243, 250, 256, 500, 512, 800, 1000):
+        x = rng.standard_normal(n) * 40.0
+        c = np.fft.rfft(x)
+        cases.append({"n": n, "x": tolist(x), "re": tolist(c.real), "im": tolist(c.imag)})
+    dump("fft.json", {"source": meta("numpy.fft.rfft(x)"), "cases": cases})
+
+
 if __name__ == "__main__":
-    which = sys.argv[1:] or ["butter", "filtfilt", "welch", "savgol", "specparam"]
+    which = sys.argv[1:] or ["butter", "filtfilt", "welch", "savgol", "specparam", "fft"]
     for w in which:
         globals()[w + "_cases"]()

@@ -300,31 +300,29 @@ func (a *analysis) filter(rec *ingest.Recording) error {
 	work2 := make([][]float64, a.workers)
 	a.level = make([]float64, len(a.data))
 	win := max(2, int(math.Round(a.s.Channel.WindowSeconds*a.fs)))
-	// Channels go two at a time through filterPair (two recurrences
-	// overlap in the processor); with an odd count the first goes alone,
-	// as the first job, so the pairs even out the workers' ends.
-	var jobs [][]int
+	// Channels go two at a time through filterPair (two recurrences in
+	// one pass, see filterpair.go). With an odd count the first channel is
+	// paired with itself, as the first job so that the pairs even out the
+	// workers' ends: both halves hold the same samples and compute the
+	// same values, so writing both back is writing the result once.
+	var jobs [][2]int
 	c := 0
 	if len(a.data)%2 == 1 {
-		jobs, c = append(jobs, []int{0}), 1
+		jobs, c = append(jobs, [2]int{0, 0}), 1
 	}
 	for ; c+1 < len(a.data); c += 2 {
-		jobs = append(jobs, []int{c, c + 1})
+		jobs = append(jobs, [2]int{c, c + 1})
 	}
 	parallel(len(jobs), a.workers, func(w, j int) {
 		if work[w] == nil {
-			n := min(2, len(a.data))
-			work[w] = make([]float64, n*lenFast)
-			work2[w] = make([]float64, n*lenSlow)
+			work[w] = make([]float64, 2*lenFast)
+			work2[w] = make([]float64, 2*lenSlow)
 		}
-		job := jobs[j]
-		if len(job) == 1 {
-			a.data[job[0]] = a.filterOne(a.data[job[0]], work[w], work2[w])
-		} else {
-			a.data[job[0]], a.data[job[1]] = a.filterPair(a.data[job[0]], a.data[job[1]], work[w], work2[w])
-		}
-		for _, c := range job {
-			a.level[c] = windowLevel(a.data[c], a.segs, win)
+		p, q := jobs[j][0], jobs[j][1]
+		a.data[p], a.data[q] = a.filterPair(a.data[p], a.data[q], work[w], work2[w])
+		a.level[p] = windowLevel(a.data[p], a.segs, win)
+		if q != p {
+			a.level[q] = windowLevel(a.data[q], a.segs, win)
 		}
 	})
 	work, work2 = nil, nil

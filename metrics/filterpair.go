@@ -16,37 +16,20 @@ package metrics
 // buf[2i+1] the second channel's sample i, so one pass reads and writes
 // one stream.
 
-// oddExtend2 writes FiltFilt's odd extension at both ends of the
-// interleaved pair buf whose centre, n samples per channel, is already at
-// buf[2·pad : 2·(pad+n)]: 2·x[0] − x[i] before and 2·x[n−1] − x[n−1−i]
-// after, for i = 1…pad, per channel.
-func oddExtend2(buf []float64, pad, n int) {
-	for ch := 0; ch < 2; ch++ {
-		first, last := buf[2*pad+ch], buf[2*(pad+n-1)+ch]
-		for i := 1; i <= pad; i++ {
-			buf[2*(pad-i)+ch] = 2*first - buf[2*(pad+i)+ch]
-			buf[2*(pad+n-1+i)+ch] = 2*last - buf[2*(pad+n-1-i)+ch]
-		}
-	}
-}
+// pairChunk is how many samples per channel the pair passes take at a
+// time (16 KiB of interleaved doubles): a chunk is converted, filtered and
+// read back while it is in the processor's first-level cache, instead of
+// streaming the whole channel through memory once per step.
+const pairChunk = 1024
 
-// filtFilt2 runs the cascade sos forward and then backward over the
-// interleaved, already padded pair buf (len(buf)/2 samples per channel),
-// each pass starting from the steady states zi (steadyState(sos)) scaled
-// by the first sample it sees, per channel: FiltFilt's passes, without
-// its padding and trimming.
-func filtFilt2(buf []float64, sos SOS, zi [][2]float64) {
-	state := make([][4]float64, len(sos))
-	start := func(x0, x1 float64) {
-		for i := range sos {
-			state[i] = [4]float64{zi[i][0] * x0, zi[i][1] * x0, zi[i][0] * x1, zi[i][1] * x1}
-		}
+// startStates returns each section's states at the start of a pass whose
+// first samples are x0 and x1: the steady states zi scaled by them.
+func startStates(zi [][2]float64, x0, x1 float64) [][4]float64 {
+	st := make([][4]float64, len(zi))
+	for i, z := range zi {
+		st[i] = [4]float64{z[0] * x0, z[1] * x0, z[0] * x1, z[1] * x1}
 	}
-	start(buf[0], buf[1])
-	runSections2(buf, sos, state, false)
-	end := len(buf) - 2
-	start(buf[end], buf[end+1])
-	runSections2(buf, sos, state, true)
+	return st
 }
 
 // runSections2 is runSections over an interleaved pair: sections two at
@@ -64,7 +47,7 @@ func runSections2(buf []float64, sos SOS, state [][4]float64, backward bool) {
 	}
 }
 
-func run1x2(buf []float64, s *[6]float64, st *[4]float64, backward bool) {
+func run1x2Go(buf []float64, s *[6]float64, st *[4]float64, backward bool) {
 	b0, b1, b2, a1, a2 := s[0], s[1], s[2], s[4], s[5]
 	p1, p2, q1, q2 := st[0], st[1], st[2], st[3]
 	step := func(i int) {
@@ -89,7 +72,7 @@ func run1x2(buf []float64, s *[6]float64, st *[4]float64, backward bool) {
 	st[0], st[1], st[2], st[3] = p1, p2, q1, q2
 }
 
-func run2x2(buf []float64, s, t *[6]float64, ss, ts *[4]float64, backward bool) {
+func run2x2Go(buf []float64, s, t *[6]float64, ss, ts *[4]float64, backward bool) {
 	sb0, sb1, sb2, sa1, sa2 := s[0], s[1], s[2], s[4], s[5]
 	tb0, tb1, tb2, ta1, ta2 := t[0], t[1], t[2], t[4], t[5]
 	p1, p2, q1, q2 := ss[0], ss[1], ss[2], ss[3]
@@ -129,41 +112,77 @@ func run2x2(buf []float64, s, t *[6]float64, ss, ts *[4]float64, backward bool) 
 // recording's rate, a.nIn samples each) are filtered segment by segment
 // in place, and x[:a.n], y[:a.n] returned. work and work2 hold at least
 // twice workLens() values.
+//
+// Each stage is FiltFilt on the interleaved pair: odd extension by
+// pad = PadLen samples at both ends, a forward pass from the scaled steady
+// states, a backward pass from the states scaled by the last forward
+// output, then the padding cut. Chunk by chunk (pairChunk): the forward
+// pass converts each chunk's input just before filtering it, and the
+// backward pass hands each chunk's kept samples on (every q-th to the slow
+// stage, then all to x and y) just after. The backward pass stops at the
+// start of the centre: its outputs over the leading padding are cut
+// anyway, and nothing after them depends on them.
 func (a *analysis) filterPair(x, y []float32, work, work2 []float64) ([]float32, []float32) {
 	padFast, padSlow := PadLen(a.lp), PadLen(a.slow)
 	ziFast, ziSlow := steadyState(a.lp), steadyState(a.slow)
 	for i, g := range a.segsIn {
 		o := a.segs[i]
+		inX, inY := x[g.First:g.First+g.Count], y[g.First:g.First+g.Count]
 		outX, outY := x[o.First:o.First+o.Count], y[o.First:o.First+o.Count]
 		if g.Count <= padFast || o.Count <= padSlow {
 			clear(outX) // too short to filter; no epoch fits in it
 			clear(outY)
 			continue
 		}
-		fast := work[:2*(g.Count+2*padFast)]
-		centre := fast[2*padFast:]
-		for k, v := range x[g.First : g.First+g.Count] {
-			centre[2*k] = float64(v)
+		n, pad := g.Count, padFast
+		total := n + 2*pad
+		fast := work[:2*total]
+		for ch, in := range [2][]float32{inX, inY} {
+			first, last := float64(in[0]), float64(in[n-1])
+			for i := 1; i <= pad; i++ {
+				fast[2*(pad-i)+ch] = 2*first - float64(in[i])
+				fast[2*(pad+n-1+i)+ch] = 2*last - float64(in[n-1-i])
+			}
 		}
-		for k, v := range y[g.First : g.First+g.Count] {
-			centre[2*k+1] = float64(v)
+		state := startStates(ziFast, fast[0], fast[1])
+		for lo := 0; lo < total; lo += pairChunk {
+			hi := min(total, lo+pairChunk)
+			for i := max(lo, pad); i < min(hi, pad+n); i++ {
+				fast[2*i], fast[2*i+1] = float64(inX[i-pad]), float64(inY[i-pad])
+			}
+			runSections2(fast[2*lo:2*hi], a.lp, state, false)
 		}
-		oddExtend2(fast, padFast, g.Count)
-		filtFilt2(fast, a.lp, ziFast)
-		// Every q-th sample of the trimmed result, into the centre of
-		// the slow stage's padded pair.
-		slow := work2[:2*(o.Count+2*padSlow)]
-		for k := 0; k < o.Count; k++ {
-			j := 2 * (padFast + k*a.q)
-			slow[2*(padSlow+k)] = fast[j]
-			slow[2*(padSlow+k)+1] = fast[j+1]
+		// The slow stage's centre: every q-th sample of the trimmed
+		// fast result, taken as each backward chunk is done.
+		m, spad := o.Count, padSlow
+		stotal := m + 2*spad
+		slow := work2[:2*stotal]
+		state = startStates(ziFast, fast[2*(total-1)], fast[2*(total-1)+1])
+		for hi := total; hi > pad; hi -= pairChunk {
+			lo := max(pad, hi-pairChunk)
+			runSections2(fast[2*lo:2*hi], a.lp, state, true)
+			// centre sample k sits at pad + k·q; those in [lo, hi)
+			for k := (lo - pad + a.q - 1) / a.q; k < m && pad+k*a.q < hi; k++ {
+				j := 2 * (pad + k*a.q)
+				slow[2*(spad+k)], slow[2*(spad+k)+1] = fast[j], fast[j+1]
+			}
 		}
-		oddExtend2(slow, padSlow, o.Count)
-		filtFilt2(slow, a.slow, ziSlow)
-		res := slow[2*padSlow:]
-		for k := range outX {
-			outX[k] = float32(res[2*k])
-			outY[k] = float32(res[2*k+1])
+		for ch := 0; ch < 2; ch++ {
+			first, last := slow[2*spad+ch], slow[2*(spad+m-1)+ch]
+			for i := 1; i <= spad; i++ {
+				slow[2*(spad-i)+ch] = 2*first - slow[2*(spad+i)+ch]
+				slow[2*(spad+m-1+i)+ch] = 2*last - slow[2*(spad+m-1-i)+ch]
+			}
+		}
+		state = startStates(ziSlow, slow[0], slow[1])
+		runSections2(slow, a.slow, state, false)
+		state = startStates(ziSlow, slow[2*(stotal-1)], slow[2*(stotal-1)+1])
+		for hi := stotal; hi > spad; hi -= pairChunk {
+			lo := max(spad, hi-pairChunk)
+			runSections2(slow[2*lo:2*hi], a.slow, state, true)
+			for i := lo; i < min(hi, spad+m); i++ {
+				outX[i-spad], outY[i-spad] = float32(slow[2*i]), float32(slow[2*i+1])
+			}
 		}
 	}
 	return x[:a.n], y[:a.n]

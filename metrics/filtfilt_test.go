@@ -163,17 +163,20 @@ func BenchmarkFiltFilt(b *testing.B) {
 
 // TestFilterPairEqualsFilterOne: two channels filtered together by
 // filterPair are bit for bit what filterOne makes of each alone (the pair
-// runs each channel's operations in the same order), over segments of
-// several lengths (one too short to filter) and both stages' cascades.
+// runs each channel's operations in the same order), and so is a channel
+// paired with itself, over segments of several lengths (one too short to
+// filter) and cascades of one to three sections.
 func TestFilterPairEqualsFilterOne(t *testing.T) {
 	a := &analysis{q: 4}
 	var err error
 	if a.lp, err = ButterLowpass(4, 45, 500); err != nil {
 		t.Fatal(err)
 	}
-	hp, _ := ButterHighpass(2, 0.5, 125)
+	hp2, _ := ButterHighpass(2, 0.5, 125)
+	hp4, _ := ButterHighpass(4, 0.5, 125)
 	notch, _ := IIRNotch(50, 30, 125)
-	for _, slow := range []SOS{hp, append(append(SOS{}, hp...), notch...)} {
+	// one, two and three sections (the settings' cascade is the last)
+	for _, slow := range []SOS{hp2, append(append(SOS{}, hp2...), notch...), append(append(SOS{}, hp4...), notch...)} {
 		a.slow = slow
 		a.segsIn, a.segs = nil, nil
 		next, first := 0, 0
@@ -195,11 +198,20 @@ func TestFilterPairEqualsFilterOne(t *testing.T) {
 			return a.filterOne(append([]float32(nil), v...), make([]float64, lenFast), make([]float64, lenSlow))
 		}
 		wantX, wantY := one(x), one(y)
+		z := append([]float32(nil), y...) // before the pair filters y in place
 		gotX, gotY := a.filterPair(x, y, make([]float64, 2*lenFast), make([]float64, 2*lenSlow))
 		for i := range wantX {
 			if math.Float32bits(gotX[i]) != math.Float32bits(wantX[i]) || math.Float32bits(gotY[i]) != math.Float32bits(wantY[i]) {
 				t.Fatalf("%d slow sections, sample %d: pair (%g, %g), alone (%g, %g)",
 					len(slow), i, gotX[i], gotY[i], wantX[i], wantY[i])
+			}
+		}
+		// A channel paired with itself (filter's odd channel out): the
+		// same samples as alone.
+		gotZ, _ := a.filterPair(z, z, make([]float64, 2*lenFast), make([]float64, 2*lenSlow))
+		for i := range wantY {
+			if math.Float32bits(gotZ[i]) != math.Float32bits(wantY[i]) {
+				t.Fatalf("%d slow sections, sample %d: paired with itself %g, alone %g", len(slow), i, gotZ[i], wantY[i])
 			}
 		}
 	}

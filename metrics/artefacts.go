@@ -2,6 +2,7 @@ package metrics
 
 import (
 	"math"
+	"slices"
 	"sort"
 
 	"longwave/ingest"
@@ -250,19 +251,79 @@ func median(v []float64) float64 {
 // quantile returns the q-quantile of v by linear interpolation between order
 // statistics (the default of numpy.quantile, "linear"); 0 for an empty
 // slice. v is not modified.
+//
+// The order statistics are found by selection (Hoare's FIND, Comm. ACM
+// 1961; expected linear time) rather than by sorting a copy: the same two
+// values, so the same result (TestQuantileMatchesSort). A slice holding a
+// NaN is sorted instead, so that NaN keeps sort.Float64s's place (first).
 func quantile(v []float64, q float64) float64 {
 	if len(v) == 0 {
 		return 0
 	}
 	s := append([]float64(nil), v...)
-	sort.Float64s(s)
 	pos := q * float64(len(s)-1)
 	i := int(math.Floor(pos))
-	if i >= len(s)-1 {
-		return s[len(s)-1]
+	for _, x := range s {
+		if x != x {
+			sort.Float64s(s)
+			if i >= len(s)-1 {
+				return s[len(s)-1]
+			}
+			return s[i] + (pos-float64(i))*(s[i+1]-s[i])
+		}
 	}
+	if i >= len(s)-1 {
+		return slices.Max(s)
+	}
+	lo := selectOrder(s, i)
+	hi := slices.Min(s[i+1:]) // selectOrder left every later element ≥ s[i]
 	frac := pos - float64(i)
-	return s[i] + frac*(s[i+1]-s[i])
+	return lo + frac*(hi-lo)
+}
+
+// selectOrder rearranges s (no NaN) so that s[k] holds its k-th smallest
+// value (from 0), every element before k is ≤ s[k] and every element
+// after it ≥ s[k], and returns s[k]. Partitions around the median of
+// three (Hoare's scheme, which splits runs of equal values evenly).
+func selectOrder(s []float64, k int) float64 {
+	lo, hi := 0, len(s)-1
+	for lo < hi {
+		mid := lo + (hi-lo)/2
+		if s[mid] < s[lo] {
+			s[mid], s[lo] = s[lo], s[mid]
+		}
+		if s[hi] < s[lo] {
+			s[hi], s[lo] = s[lo], s[hi]
+		}
+		if s[hi] < s[mid] {
+			s[hi], s[mid] = s[mid], s[hi]
+		}
+		p := s[mid]
+		i, j := lo, hi
+		for i <= j {
+			for s[i] < p {
+				i++
+			}
+			for p < s[j] {
+				j--
+			}
+			if i <= j {
+				s[i], s[j] = s[j], s[i]
+				i++
+				j--
+			}
+		}
+		// s[lo..j] ≤ p ≤ s[i..hi], and everything between equals p
+		switch {
+		case k <= j:
+			hi = j
+		case k >= i:
+			lo = i
+		default:
+			return s[k]
+		}
+	}
+	return s[k]
 }
 
 // robustUpperLimit is median + k · 1.4826 · MAD of v (the robust z-score

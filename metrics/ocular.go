@@ -237,9 +237,11 @@ func (a *analysis) correctOcular(rec *ingest.Recording) error {
 // for another reason stays out.
 func (a *analysis) remarkBadChannels() {
 	win := max(2, int(math.Round(a.s.Channel.WindowSeconds*a.fs)))
-	for c, name := range a.names {
-		delete(a.badReason, name)
+	parallel(len(a.names), a.workers, func(_, c int) {
 		a.level[c] = windowLevel(a.data[c], a.segs, win)
+	})
+	for _, name := range a.names {
+		delete(a.badReason, name)
 	}
 	a.bad = nil
 	a.markBadChannels()

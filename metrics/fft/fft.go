@@ -314,14 +314,16 @@ var (
 func pass5(in, out []complex128, st *stage) {
 	ns, m := st.ns, len(in)/5
 	c1, s1, c2, s2 := cos72, sin72, cos144, sin144
-	for jm := 0; jm < ns; jm++ {
-		tw := st.tw[4*jm : 4*jm+4]
-		w1, w2, w3, w4 := tw[0], tw[1], tw[2], tw[3]
-		for j, o := jm, jm; j < m; j, o = j+ns, o+5*ns {
-			x := in[j : j+4*m+1]
-			v0, v1, v2, v3, v4 := x[0], x[m], x[2*m], x[3*m], x[4*m]
+	// j = jq·ns + jm: for each jq, the inputs (and outputs) of
+	// consecutive jm are consecutive.
+	for jq := 0; jq < m/ns; jq++ {
+		x := in[jq*ns:]
+		y := out[jq*ns*5:]
+		for jm := 0; jm < ns; jm++ {
+			v0, v1, v2, v3, v4 := x[jm], x[jm+m], x[jm+2*m], x[jm+3*m], x[jm+4*m]
 			if ns > 1 {
-				v1, v2, v3, v4 = v1*w1, v2*w2, v3*w3, v4*w4
+				tw := st.tw[4*jm : 4*jm+4 : 4*jm+4]
+				v1, v2, v3, v4 = v1*tw[0], v2*tw[1], v3*tw[2], v4*tw[3]
 			}
 			a1r, a1i := real(v1)+real(v4), imag(v1)+imag(v4)
 			b1r, b1i := real(v1)-real(v4), imag(v1)-imag(v4)
@@ -332,12 +334,11 @@ func pass5(in, out []complex128, st *stage) {
 			rbr, rbi := real(v0)+c2*a1r+c1*a2r, imag(v0)+c2*a1i+c1*a2i
 			iar, iai := s1*b1r+s2*b2r, s1*b1i+s2*b2i
 			ibr, ibi := s2*b1r-s1*b2r, s2*b1i-s1*b2i
-			y := out[o : o+4*ns+1]
-			y[0] = complex(real(v0)+a1r+a2r, imag(v0)+a1i+a2i)
-			y[ns] = complex(rar+iai, rai-iar)
-			y[2*ns] = complex(rbr+ibi, rbi-ibr)
-			y[3*ns] = complex(rbr-ibi, rbi+ibr)
-			y[4*ns] = complex(rar-iai, rai+iar)
+			y[jm] = complex(real(v0)+a1r+a2r, imag(v0)+a1i+a2i)
+			y[jm+ns] = complex(rar+iai, rai-iar)
+			y[jm+2*ns] = complex(rbr+ibi, rbi-ibr)
+			y[jm+3*ns] = complex(rbr-ibi, rbi+ibr)
+			y[jm+4*ns] = complex(rar-iai, rai+iar)
 		}
 	}
 }

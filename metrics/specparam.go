@@ -458,6 +458,7 @@ func fitPeaks(f, flat []float64, guesses []peakParams, s SpecParamSettings) []pe
 	trial := make([]float64, n)
 	step := make([]float64, n)
 	inFace := make([]bool, n)
+	near := make([]int, 0, k)
 	lambda, nu := lmLambdaInit, 2.0
 	cur := cost(x, exCur, res)
 	for range lmMaxIter {
@@ -477,19 +478,43 @@ func fitPeaks(f, flat []float64, guesses []peakParams, s SpecParamSettings) []pe
 				jac[i*n+3*j+2] = h * e * d * d / (sd * sd * sd)
 			}
 		}
+		// JᵀJ (lower triangle) and JᵀR, row by row. A Gaussian beyond
+		// its reach at f[i] has a zero block in row i; only the blocks of
+		// the Gaussians in reach (ascending) are multiplied. Skipping a
+		// zero product leaves a sum as it was: no sum here is −0 (each
+		// starts at +0, and +0 + ±0 = +0), so the result is the same to
+		// the bit as the dense loop's.
 		clear(jtj)
 		clear(jtr)
 		for i := range m {
 			row := jac[i*n : (i+1)*n]
 			ri := res[i]
-			for p, rp := range row {
-				if rp == 0 {
-					continue
+			near = near[:0]
+			for j := 0; j < k; j++ {
+				if exCur[i*k+j] >= 0 {
+					near = append(near, j)
 				}
-				jtr[p] += rp * ri
-				acc := jtj[p*n : p*n+p+1]
-				for q, rq := range row[:len(acc)] {
-					acc[q] += rp * rq
+			}
+			for _, ja := range near {
+				for p := 3 * ja; p < 3*ja+3; p++ {
+					rp := row[p]
+					if rp == 0 {
+						continue
+					}
+					jtr[p] += rp * ri
+					acc := jtj[p*n : p*n+p+1]
+					for _, jb := range near {
+						q := 3 * jb
+						if jb == ja {
+							for ; q <= p; q++ {
+								acc[q] += rp * row[q]
+							}
+							break
+						}
+						acc[q] += rp * row[q]
+						acc[q+1] += rp * row[q+1]
+						acc[q+2] += rp * row[q+2]
+					}
 				}
 			}
 		}

@@ -10,14 +10,14 @@
 //
 // Method: the mixed-radix Cooley–Tukey algorithm (Cooley & Tukey 1965) in
 // the self-sorting form of Stockham (Cochran et al. 1967; Van Loan,
-// Computational Frameworks for the Fast Fourier Transform, SIAM 1992,
-// §1.7), with radix-4, 2, 3 and 5 butterflies and twiddle factors tabled
-// once per length. A real sequence of even length n is transformed as a
+// Computational Frameworks for the Fast Fourier Transform, SIAM 1992;
+// references from memory), with radix-4, 2, 3 and 5 butterflies and
+// twiddle factors tabled once per length. A real sequence of even length n is transformed as a
 // complex one of length n/2 (even samples real, odd samples imaginary) and
 // separated afterwards; two real sequences of any length are transformed
 // at once as the real and imaginary parts of one complex sequence (both
 // splits: Brigham, The Fast Fourier Transform and its Applications,
-// Prentice Hall 1988, §9.3). On amd64 the radix-5 pass, most of the work
+// Prentice Hall 1988, from memory). On amd64 the radix-5 pass, most of the work
 // at the analysis lengths 125 and 500, runs in SSE2 (pass5_amd64.s) with
 // the Go pass's operations in its order. Checked against numpy.fft.rfft
 // and a direct DFT (fft_test.go).

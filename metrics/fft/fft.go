@@ -52,10 +52,8 @@ func NewReal(n int) *Real {
 		for k := range r.w {
 			r.w[k] = expm(k, n)
 		}
-		r.z = make([]complex128, n)
-	} else {
-		r.z = make([]complex128, n)
 	}
+	r.z = make([]complex128, n)
 	return r
 }
 
@@ -98,9 +96,8 @@ func (r *Real) Coefficients(dst []complex128, x []float64) []complex128 {
 		if kb == h {
 			kb = 0
 		}
-		a, b := zf[ka], zf[kb]
-		er, ei := (real(a)+real(b))*0.5, (imag(a)-imag(b))*0.5 // (a + conj b)/2
-		or, oi := (imag(a)+imag(b))*0.5, (real(b)-real(a))*0.5 // (a − conj b)/(2i)
+		e, o := split(zf[ka], zf[kb])
+		er, ei, or, oi := real(e), imag(e), real(o), imag(o)
 		wr, wi := real(w[k]), imag(w[k])
 		dst[k] = complex(er+wr*or-wi*oi, ei+wr*oi+wi*or)
 	}
@@ -129,11 +126,17 @@ func (r *Real) Pair(dx, dy []complex128, x, y []float64) ([]complex128, []comple
 		if k == 0 {
 			kb = 0
 		}
-		a, b := zf[k], zf[kb]
-		dx[k] = complex((real(a)+real(b))*0.5, (imag(a)-imag(b))*0.5)
-		dy[k] = complex((imag(a)+imag(b))*0.5, (real(b)-real(a))*0.5)
+		dx[k], dy[k] = split(zf[k], zf[kb])
 	}
 	return dx, dy
+}
+
+// split separates a = Z_k and b = Z_{−k} of a complex sequence's transform
+// into the transforms of its real part, (a + conj b)/2, and of its
+// imaginary part, (a − conj b)/(2i).
+func split(a, b complex128) (complex128, complex128) {
+	return complex((real(a)+real(b))*0.5, (imag(a)-imag(b))*0.5),
+		complex((imag(a)+imag(b))*0.5, (real(b)-real(a))*0.5)
 }
 
 func (r *Real) fullPlan() {

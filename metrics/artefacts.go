@@ -263,22 +263,21 @@ func quantile(v []float64, q float64) float64 {
 	s := append([]float64(nil), v...)
 	pos := q * float64(len(s)-1)
 	i := int(math.Floor(pos))
-	for _, x := range s {
-		if x != x {
-			sort.Float64s(s)
-			if i >= len(s)-1 {
-				return s[len(s)-1]
-			}
-			return s[i] + (pos-float64(i))*(s[i+1]-s[i])
+	var lo, hi float64 // order statistics i and i+1
+	if slices.ContainsFunc(s, math.IsNaN) {
+		sort.Float64s(s)
+		if i >= len(s)-1 {
+			return s[len(s)-1]
 		}
+		lo, hi = s[i], s[i+1]
+	} else {
+		if i >= len(s)-1 {
+			return slices.Max(s)
+		}
+		lo = selectOrder(s, i)
+		hi = slices.Min(s[i+1:]) // selectOrder left every later element ≥ s[i]
 	}
-	if i >= len(s)-1 {
-		return slices.Max(s)
-	}
-	lo := selectOrder(s, i)
-	hi := slices.Min(s[i+1:]) // selectOrder left every later element ≥ s[i]
-	frac := pos - float64(i)
-	return lo + frac*(hi-lo)
+	return lo + (pos-float64(i))*(hi-lo)
 }
 
 // selectOrder rearranges s (no NaN) so that s[k] holds its k-th smallest

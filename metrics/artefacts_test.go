@@ -179,3 +179,35 @@ func TestQuantileMatchesSort(t *testing.T) {
 		t.Errorf("with a NaN: %v, sort gives %v", got, want)
 	}
 }
+
+// TestStat2MatchesStat: two epochs measured together (periodogram.stat2,
+// one complex transform for both) give each epoch's time-domain statistics
+// exactly as stat does alone, and its band powers to rounding (1e-12).
+func TestStat2MatchesStat(t *testing.T) {
+	set := V2()
+	p := newPeriodogram(125, 125)
+	r := rand.New(rand.NewPCG(1, 2))
+	for k := 0; k < 500; k++ {
+		x, y := make([]float32, 125), make([]float32, 125)
+		for i := range x {
+			x[i] = float32(r.NormFloat64() * 50)
+			y[i] = float32(r.NormFloat64()*5 + 100)
+		}
+		gx, gy := p.stat2(x, y, set.Artefacts, set.Bands.Alpha, set.Bands.Delta)
+		for _, c := range []struct{ got, want epochStat }{
+			{gx, p.stat(x, set.Artefacts, set.Bands.Alpha, set.Bands.Delta)},
+			{gy, p.stat(y, set.Artefacts, set.Bands.Alpha, set.Bands.Delta)},
+		} {
+			if c.got.PeakToPeak != c.want.PeakToPeak || c.got.Variance != c.want.Variance {
+				t.Fatalf("case %d: peak-to-peak, variance %v, %v together; %v, %v alone",
+					k, c.got.PeakToPeak, c.got.Variance, c.want.PeakToPeak, c.want.Variance)
+			}
+			for _, v := range [][2]float64{{c.got.Muscle, c.want.Muscle}, {c.got.MuscleTotal, c.want.MuscleTotal},
+				{c.got.Alpha, c.want.Alpha}, {c.got.Slow, c.want.Slow}} {
+				if math.Abs(v[0]-v[1]) > 1e-12*math.Abs(v[1]) {
+					t.Fatalf("case %d: band power %v together, %v alone", k, v[0], v[1])
+				}
+			}
+		}
+	}
+}
